@@ -1,0 +1,518 @@
+"""The sampling run as a generator of JSON-safe snapshots.
+
+``run(series, model_spec, settings)`` yields a snapshot (a small dictionary
+with a schema version) every ``settings.snapshot_every`` iterations, through
+the phases ``init`` (mode search), ``warmup`` (adaptation) and ``sampling``,
+and ends with one whose phase is ``done``. Raw draws go to the sink; the
+snapshots carry only summaries. Every consumer (CLI, tests, local worker,
+Celery worker) drains the same generator.
+
+The warm-up schedule is plain data (:func:`warmup_schedule`): a fast window
+for the step size, slow windows of doubling length at whose ends the dense
+preconditioner is re-estimated from the pooled positions of all chains, and a
+final fast window. At each slow window's end, chains far below the others
+are restarted from copies of good chains (warm-up only); after warm-up any
+chain still far below is dropped from the run and the drop is reported.
+
+Randomness: one seed; the chains' stream and the summaries' stream are
+independent children of it, so snapshots (whose number depends on timing)
+never change the draws.
+"""
+
+from __future__ import annotations
+
+import ctypes
+import math
+import time
+
+import numpy as np
+from scipy.linalg import solve_triangular
+
+from . import SCHEMA_VERSION, diagnostics, summaries
+from .jsonsafe import num as _num
+from .jsonsafe import num_list
+from .hmc import ChEES, DualAveraging, Params, Target, covariance_chol, init_state, step
+from .init import find_starts
+from .model import TrendModel
+from .sinks import MemorySink
+
+RHAT_MAX = 1.01
+ESS_MIN = 400
+#: A chain whose mean log density is this far below the median chain's (or
+#: six times the typical within-chain sd, whichever is larger) is stuck in a
+#: trap mode (common practice, no source: a mode 20 log-units down carries
+#: about e^-20 of the mass).
+STUCK_GAP = 20.0
+MAX_LEAPFROG = 256
+#: Snapshots summarise at most this many draws (the final result uses more).
+SNAPSHOT_DRAWS = 250
+#: Convergence checks during sampling use at most this many evenly spaced
+#: draws per chain (thinning keeps the ESS estimate conservative); the JSON
+#: result's diagnostics use every draw.
+DIAGNOSTIC_DRAWS = 1000
+
+
+def warmup_schedule(n):
+    """Window plan for ``n`` warm-up iterations.
+
+    Returns
+    -------
+    list of (kind, length)
+        ``("fast", k)`` adapts the step size only; ``("slow", k)`` also
+        re-estimates the preconditioner at its end. Lengths sum to ``n``.
+    """
+    first = max(5, int(0.15 * n))
+    last = max(5, int(0.1 * n))
+    middle = n - first - last
+    windows = [("fast", first)]
+    size = max(5, middle // 7)  # 1 + 2 + 4 units
+    left = middle
+    while left > 0:
+        k = size if left - size >= 2 * size else left
+        windows.append(("slow", k))
+        left -= k
+        size *= 2
+    windows.append(("fast", last))
+    return windows
+
+
+def default_warmup(model):
+    """Warm-up length by problem size (common practice, no source).
+
+    The start search hands warm-up a good point and preconditioner, and the
+    preconditioner is estimated from all chains pooled, so a short warm-up
+    suffices: 100 iterations plus 3 per coordinate (about 150 for K = 4 with
+    weekday effects). Measured by bench/engine.py: longer warm-ups did not
+    shorten the time to convergence.
+    """
+    return int(min(400, 100 + 3 * model.dim))
+
+
+def reserve_heap():
+    """Keep freed heap memory in the process between gradient calls.
+
+    glibc returns freed memory to the system after each batch of large
+    temporaries and maps it again on the next call; the page faults cost
+    about as much as the arithmetic of one gradient (measured here: 64-chain
+    gradient 3.6 ms before, 1.1 ms after). Raising the trim and mmap
+    thresholds keeps that memory mapped for reuse. No effect off glibc.
+    """
+    try:
+        libc = ctypes.CDLL("libc.so.6")
+        libc.mallopt(-1, 256 << 20)  # M_TRIM_THRESHOLD
+        libc.mallopt(-3, 32 << 20)  # M_MMAP_THRESHOLD
+    except (OSError, AttributeError):
+        pass
+
+
+def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time.monotonic):
+    """Fit the model, yielding snapshots.
+
+    Parameters
+    ----------
+    series : Series
+    model_spec : ModelSpec
+    settings : RunSettings
+    sink : object, optional
+        Draw store with ``reset(chains, names)`` and ``append(pos, lp)``;
+        a :class:`MemorySink` when None.
+    should_stop : callable, optional
+        Called every iteration; returning True ends the run (status
+        ``stopped``), keeping what was drawn.
+    clock : callable
+        Monotonic seconds (tests may pass a fake).
+
+    Yields
+    ------
+    dict
+        Snapshots; the last has ``phase == "done"`` and a ``status`` of
+        ``converged``, ``stopped`` or ``unconverged`` (time budget or draw
+        limit reached first).
+    """
+    reserve_heap()
+    model = TrendModel(series, model_spec)
+    sink = MemorySink() if sink is None else sink
+    should_stop = should_stop or (lambda: False)
+    seeds = np.random.SeedSequence(settings.seed).spawn(3)
+    rng = np.random.default_rng(seeds[0])
+    rng_init = np.random.default_rng(seeds[1])
+    rng_summary = np.random.default_rng(seeds[2])
+    t0 = clock()
+    timings = {}
+    target = Target(model.log_density, model.grad)
+    C = settings.chains
+    W = settings.warmup or default_warmup(model)
+    progress = _Progress(model, settings, t0, clock, rng_summary)
+    yield progress.snapshot("init", 0, W)
+
+    # -- starting points
+    modes, mode_lp, chol = find_starts(model, rng_init)
+    good = modes[mode_lp >= mode_lp[0] - STUCK_GAP]
+    starts = good[np.arange(C) % good.shape[0]]
+    starts = starts + rng_init.standard_normal((C, model.dim)) @ chol.T
+    state = init_state(target, starts)
+    bad = ~np.isfinite(state.log_density)
+    if np.any(bad):
+        starts[bad] = modes[0]
+        state = init_state(target, starts)
+    timings["init_seconds"] = clock() - t0
+    progress.mode_lp = float(mode_lp[0])
+
+    # -- warm-up
+    eps = _initial_step_size(rng, state, target, chol)
+    da = DualAveraging(eps)
+    chees = ChEES(trajectory_length=1.0, max_length=MAX_LEAPFROG * eps)
+    it = 0
+    restarted = 0
+    stopped = False
+    last_yield = clock()
+    for kind, length in warmup_schedule(W):
+        win_pos, win_lp = [], []
+        last_window = kind == "fast" and it + length >= W
+        for _ in range(length):
+            u = 1.0 - rng.random()
+            n_steps = int(min(MAX_LEAPFROG, max(1, math.ceil(u * chees.length / eps))))
+            x_old = _whiten(chol, state.position)
+            state, info = step(rng, state, target, Params(eps, n_steps, chol))
+            eps = da.update(info.accept_prob)
+            chees.update(x_old, _whiten(chol, info.proposal), info.end_momentum, info.accept_prob, u)
+            chees.max_log_T = math.log(MAX_LEAPFROG * eps)
+            if last_window:
+                chees.average()
+            progress.record(info, n_steps)
+            win_pos.append(state.position)
+            win_lp.append(state.log_density)
+            it += 1
+            if it % settings.snapshot_every == 0 or (
+                settings.snapshot_seconds and clock() - last_yield > settings.snapshot_seconds
+            ):
+                yield progress.snapshot("warmup", it, W, positions=state.position, eps=eps, T=chees.length)
+                last_yield = clock()
+            if should_stop():
+                stopped = True
+                break
+        if stopped:
+            break
+        if kind == "slow":
+            lp_win = np.array(win_lp)  # (k, C)
+            stuck = _stuck_chains(lp_win)
+            if np.any(stuck):
+                donors = rng.choice(np.flatnonzero(~stuck), size=int(stuck.sum()))
+                pos = state.position.copy()
+                pos[stuck] = pos[donors]
+                state = init_state(target, pos)
+                restarted += int(stuck.sum())
+            pooled = np.array(win_pos)[:, ~stuck].reshape(-1, model.dim)
+            chol = covariance_chol(pooled)
+            da = DualAveraging(eps)
+    eps = da.final() if da.count else eps
+    T = chees.final()
+    timings["warmup_seconds"] = clock() - t0 - timings["init_seconds"]
+
+    # -- drop chains still stuck after warm-up
+    keep = np.ones(C, dtype=bool)
+    if not stopped and W > 0:
+        tail = np.array(win_lp) if win_lp else state.log_density[None, :]
+        keep = ~_stuck_chains(tail)
+    dropped = [int(i) for i in np.flatnonzero(~keep)]
+    if dropped:
+        state = init_state(target, state.position[keep])
+    progress.set_chains(int(keep.sum()), dropped, restarted)
+    names = model.param_names
+    sink.reset(int(keep.sum()), names)
+
+    # -- sampling
+    status = "stopped" if stopped else None
+    block_pos, block_lp = [], []
+    n_draws = 0
+    t_sample = clock()
+    max_draws = settings.max_draws or max(20 * settings.draws, 4000)
+    next_check = settings.snapshot_every
+    diag = traces = None
+    diag_at = -1  # draws at the last convergence check
+
+    def flush():
+        if block_pos:
+            sink.append(np.stack(block_pos, axis=1), np.stack(block_lp, axis=1))
+            block_pos.clear()
+            block_lp.clear()
+
+    while status is None:
+        u = 1.0 - rng.random()
+        n_steps = int(min(MAX_LEAPFROG, max(1, math.ceil(u * T / eps))))
+        state, info = step(rng, state, target, Params(eps, n_steps, chol))
+        progress.record(info, n_steps, sampling=True)
+        block_pos.append(state.position)
+        block_lp.append(state.log_density)
+        n_draws += 1
+        if should_stop():
+            status = "stopped"
+        elif n_draws >= max_draws:
+            status = "unconverged"
+        elif n_draws >= next_check:
+            # Convergence is checked at iterations fixed by the draws alone,
+            # so the draws never depend on timing.
+            flush()
+            diag, traces = progress.check(sink.read()[0])
+            diag_at = n_draws
+            if diag["converged"] and n_draws >= settings.draws:
+                status = "converged"
+            elif clock() - t0 > settings.max_seconds:
+                status = "unconverged"
+            else:
+                next_check = n_draws + _next_check_gap(n_draws, diag, settings)
+        if status is None and (
+            (not settings.snapshot_seconds and diag_at == n_draws)
+            or (settings.snapshot_seconds and clock() - last_yield > settings.snapshot_seconds)
+        ):
+            flush()
+            yield progress.snapshot(
+                "sampling", W + n_draws, W, positions=sink.read()[0], eps=eps, T=T,
+                diagnostics=diag, traces=traces, diagnostics_at=diag_at,
+            )
+            last_yield = clock()
+    flush()
+    timings["sampling_seconds"] = clock() - t_sample
+    timings["total_seconds"] = clock() - t0
+    positions, _ = sink.read()
+    if positions.size and diag_at != n_draws and positions.shape[1] >= 4:
+        diag, traces = progress.check(positions)
+        diag_at = n_draws
+    final = progress.snapshot(
+        "done", W + n_draws, W, positions=positions if positions.size else None, eps=eps, T=T,
+        diagnostics=diag, traces=traces, diagnostics_at=diag_at,
+    )
+    if status == "unconverged" and diag and diag["converged"] and n_draws >= settings.draws:
+        status = "converged"
+    final["status"] = status
+    final["timings"] = {k: round(v, 4) for k, v in timings.items()}
+    yield final
+
+
+def _next_check_gap(n_draws, diag, settings):
+    """Draws until the next convergence check, projected from this one.
+
+    Under convergence R-hat - 1 falls and ESS grows about in proportion to
+    the draws, so the draws still needed are projected from how far each
+    is from its threshold; the gap is at least ``snapshot_every`` and at most
+    the draws so far (a doubling), so an unconverged run is still checked
+    often enough.
+    """
+    rh = diag["rhat_max"]
+    ess = min(diag["ess_bulk_min"] or 0.0, diag["ess_tail_min"] or 0.0)
+    factor = max(
+        (rh - 1.0) / (0.9 * (RHAT_MAX - 1.0)) if rh is not None else 2.0,
+        1.05 * ESS_MIN / max(ess, 1.0),
+        settings.draws / n_draws,
+    )
+    gap = int(round(n_draws * (factor - 1.0)))
+    return int(min(max(gap, settings.snapshot_every), n_draws))
+
+
+def _whiten(chol, x):
+    return solve_triangular(chol, x.T, lower=True).T
+
+
+def _stuck_chains(lp_window):
+    """Chains whose mean log density in a window is far below the median chain's.
+
+    Parameters
+    ----------
+    lp_window : numpy.ndarray, shape (k, C)
+    """
+    lp = np.where(np.isfinite(lp_window), lp_window, -1e300)
+    means = lp.mean(axis=0)
+    spread = float(np.median(lp.std(axis=0))) if lp.shape[0] > 1 else 0.0
+    gap = max(STUCK_GAP, 6.0 * spread)
+    stuck = means < np.median(means) - gap
+    if stuck.sum() * 2 > lp.shape[1]:  # never drop a majority; that is non-convergence
+        return np.zeros(lp.shape[1], dtype=bool)
+    return stuck
+
+
+def _initial_step_size(rng, state, target, chol):
+    """Halve or double a one-step trajectory until acceptance crosses 0.8.
+
+    After Hoffman & Gelman (2014), Algorithm 4, on the mean over chains.
+    """
+    eps = 0.5
+    for _ in range(30):
+        _, info = step(rng, state, target, Params(eps, 1, chol))
+        a = float(np.mean(info.accept_prob))
+        if a < 0.8:
+            eps *= 0.5
+        elif eps < 4.0:
+            eps *= 1.5
+            _, info2 = step(rng, state, target, Params(eps, 1, chol))
+            if float(np.mean(info2.accept_prob)) < 0.8:
+                eps /= 1.5
+                break
+        else:
+            break
+        if eps < 1e-6:
+            break
+    return eps
+
+
+class _Progress:
+    """Builds snapshots; keeps the running counters (acceptance, divergences)."""
+
+    def __init__(self, model, settings, t0, clock, rng):
+        self.model = model
+        self.settings = settings
+        self.t0 = t0
+        self.clock = clock
+        self.rng = rng
+        self.n_grad = 0
+        self.accept_sum = 0.0
+        self.accept_n = 0
+        self.divergent = 0
+        self.chains = settings.chains
+        self.dropped = []
+        self.restarted = 0
+        self.mode_lp = None
+        self.gi = None
+        if settings.gi_mean_days is not None:
+            self.gi = (settings.gi_mean_days, settings.gi_sd_days)
+
+    def record(self, info, n_steps, sampling=False):
+        self.n_grad += n_steps * info.accept_prob.size
+        self.accept_sum = 0.95 * self.accept_sum + 0.05 * float(np.mean(info.accept_prob)) if self.accept_n else float(np.mean(info.accept_prob))
+        self.accept_n += 1
+        if sampling:
+            self.divergent += int(info.divergent.sum())
+
+    def set_chains(self, kept, dropped, restarted):
+        self.chains = kept
+        self.dropped = dropped
+        self.restarted = restarted
+
+    def check(self, positions):
+        """Diagnostics (on at most DIAGNOSTIC_DRAWS per chain) and traces of the draws so far.
+
+        Parameters
+        ----------
+        positions : numpy.ndarray, shape (chains, draws, dim)
+        """
+        names, values = summaries.reported_quantities(self.model, positions)
+        return diagnose(names, _thin(values, DIAGNOSTIC_DRAWS)), _traces(names, values)
+
+    def snapshot(self, phase, iteration, warmup, positions=None, eps=None, T=None,
+                 diagnostics=None, traces=None, diagnostics_at=None):
+        """A JSON-safe summary of the run so far.
+
+        ``positions`` is (chains, dim) in warm-up (the chains' current
+        positions) or (chains, draws, dim) in sampling; ``diagnostics`` come
+        from the last :meth:`check` (made at ``diagnostics_at`` draws).
+        """
+        model = self.model
+        snap = {
+            "schema_version": SCHEMA_VERSION,
+            "phase": phase,
+            "iteration": int(iteration),
+            "warmup_iterations": int(warmup),
+            "elapsed_seconds": round(self.clock() - self.t0, 3),
+            "chains": int(self.chains),
+            "draws_per_chain": int(max(0, iteration - warmup)) if phase in ("sampling", "done") else 0,
+            "draws_requested": int(self.settings.draws),
+            "sampler": {
+                "step_size": _num(eps),
+                "trajectory_length": _num(T),
+                "accept_rate": _num(self.accept_sum),
+                "divergences": int(self.divergent),
+                "gradient_evaluations": int(self.n_grad),
+                "chains_dropped": list(self.dropped),
+                "chains_restarted_in_warmup": int(self.restarted),
+            },
+            "diagnostics": diagnostics,
+            "diagnostics_at_draw": diagnostics_at if diagnostics is not None else None,
+            "traces": traces,
+        }
+        if positions is None:
+            return snap
+        flat = positions if positions.ndim == 2 else positions.reshape(-1, positions.shape[-1])
+        if flat.shape[0] > SNAPSHOT_DRAWS:
+            idx = np.linspace(0, flat.shape[0] - 1, SNAPSHOT_DRAWS).astype(int)
+            flat = flat[idx]
+        snap["band"] = summaries.band(model, flat, self.rng)
+        snap["segments"] = summaries.segments(model, flat, self.gi)
+        snap["changepoints"] = summaries.changepoints(model, flat)
+        snap["changepoint_histograms"] = summaries.changepoint_histograms(model, flat)
+        snap["current"] = summaries.current(model, flat, self.gi)
+        snap["projection"] = summaries.projection(model, flat, self.rng, self.settings.horizon)
+        snap["weekday"] = summaries.weekday_effects(model, flat)
+        return snap
+
+
+def _thin(values, most):
+    """Evenly spaced draws along axis 1, at most ``most``, the last always kept."""
+    N = values.shape[1]
+    if N <= most:
+        return values
+    idx = np.unique(np.linspace(N - 1, 0, most).round().astype(int))
+    return values[:, idx]
+
+
+def diagnose(names, values):
+    """R-hat, bulk and tail ESS for each reported quantity, and the verdict.
+
+    Parameters
+    ----------
+    names : list of str
+    values : numpy.ndarray, shape (chains, draws, P)
+    """
+    rh = np.atleast_1d(np.asarray(diagnostics.rhat(values), dtype=float))
+    eb = np.atleast_1d(np.asarray(diagnostics.ess_bulk(values), dtype=float))
+    et = np.atleast_1d(np.asarray(diagnostics.ess_tail(values), dtype=float))
+    rows = [
+        {"name": n, "rhat": _num(r), "ess_bulk": _num(b), "ess_tail": _num(t)}
+        for n, r, b, t in zip(names, rh, eb, et)
+    ]
+    rh = np.nan_to_num(rh, nan=np.inf)
+    eb = np.nan_to_num(eb, nan=0.0)
+    et = np.nan_to_num(et, nan=0.0)
+    converged = bool(rh.max() < RHAT_MAX and eb.min() >= ESS_MIN and et.min() >= ESS_MIN)
+    return {
+        "converged": converged,
+        "rhat_max": _num(rh.max()),
+        "ess_bulk_min": _num(eb.min()),
+        "ess_tail_min": _num(et.min()),
+        "parameters": rows,
+        "criterion": f"max R-hat < {RHAT_MAX} and min bulk and tail ESS >= {ESS_MIN}",
+    }
+
+
+def _traces(names, values, points=150):
+    """Thinned traces of each reported quantity, per chain (the last ``points`` kept)."""
+    C, N, P = values.shape
+    stride = max(1, N // points)
+    idx = np.arange(N - 1, -1, -stride)[::-1][-points:]
+    sub = np.transpose(values[:, idx], (2, 0, 1))  # (P, C, k)
+    flat = num_list(sub, 5)
+    k = idx.size
+    return {
+        "iteration": [int(i) for i in idx],
+        "names": list(names),
+        "values": [[flat[(p * C + c) * k:(p * C + c + 1) * k] for c in range(C)] for p in range(P)],
+    }
+
+
+def fit(series, model_spec, settings, *, sink=None, should_stop=None, on_snapshot=None):
+    """Drain :func:`run`; return the final snapshot and the sink.
+
+    Parameters
+    ----------
+    on_snapshot : callable, optional
+        Called with each snapshot as it comes.
+
+    Returns
+    -------
+    (final_snapshot, sink)
+    """
+    sink = MemorySink() if sink is None else sink
+    final = None
+    for snap in run(series, model_spec, settings, sink=sink, should_stop=should_stop):
+        if on_snapshot is not None:
+            on_snapshot(snap)
+        final = snap
+    return final, sink
