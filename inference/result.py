@@ -1,0 +1,138 @@
+"""The JSON result of a fit: stable keys that scripts and batch jobs read.
+
+Keys follow the project's design (schema version 1); keys may be added, none
+renamed without a schema version bump. Built from the final snapshot and all
+the draws, never from the UI.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+
+import numpy as np
+
+from . import SCHEMA_VERSION, summaries
+from .driver import ESS_MIN, RHAT_MAX, diagnose
+from .spec import options_from_spec
+
+#: Shown with every result, in the app, the briefing view and the reports.
+CAUTIONS = (
+    "These estimates depend on the model's assumptions (a piecewise-exponential "
+    "trend, the chosen observation model and options) and on the quality and "
+    "completeness of the data.",
+    "They are no substitute for epidemiological judgement: defer to your "
+    "agency's own methods and to qualified epidemiologists.",
+    "The projection shows what follows if the current trend continues; it is "
+    "not a forecast of what will happen.",
+)
+
+#: Draws used for bands and projections in the result (quantiles of 4000
+#: draws have Monte Carlo error well below the interval widths).
+RESULT_DRAWS = 4000
+
+
+def assumptions(model):
+    """The model's assumptions in one line each, for footers and reports."""
+    spec = model.spec
+    fam = "negative binomial (overdispersed)" if spec.family == "negbin" else "Poisson"
+    lines = [
+        f"{spec.segments} segment{'s' if spec.segments != 1 else ''} of exponential growth or decline, "
+        f"each at least {spec.min_segment_days:g} days long",
+        f"observation model: {fam}",
+        "day-of-week reporting effect: " + ("yes" if model.weekday else "no"),
+        "level jumps at change dates: " + ("yes" if model.jumps else "no"),
+    ]
+    if spec.drop_last:
+        lines.append(f"last {spec.drop_last} values left out as incomplete")
+    elif spec.completeness:
+        fr = ", ".join(f"{c:.0%}" for c in spec.completeness)
+        lines.append(f"latest values taken as partly reported ({fr}, latest first)")
+    else:
+        lines.append("all values taken as complete")
+    lines.append(
+        f"growth-rate prior: 95% within ±{spec.growth_rate_prior_pct_per_day:g}% per day"
+    )
+    if spec.changepoint_priors:
+        lines.append("change dates: centred on the analyst's tentative dates")
+    else:
+        lines.append("change dates: uniform over the series")
+    return lines
+
+
+def build_result(model, settings, final, positions, rng, *, options=None, segment_support=None):
+    """Assemble the JSON result.
+
+    Parameters
+    ----------
+    model : TrendModel
+    settings : RunSettings
+    final : dict
+        The last snapshot of :func:`inference.driver.run`.
+    positions : numpy.ndarray, shape (chains, draws, dim)
+    rng : numpy.random.Generator
+        For predictive draws (seeded by the caller for reproducibility).
+    options : dict, optional
+        The options as given (CLI flags, API spec); defaults to the full spec.
+    segment_support : list of dict, optional
+        From :func:`inference.compare.segment_support`.
+
+    Returns
+    -------
+    dict
+        JSON-safe.
+    """
+    series = model.series
+    C, N, D = positions.shape
+    flat = positions.reshape(C * N, D)
+    if flat.shape[0] > RESULT_DRAWS:
+        idx = np.linspace(0, flat.shape[0] - 1, RESULT_DRAWS).astype(int)
+        flat = flat[idx]
+    gi = None
+    if settings.gi_mean_days is not None:
+        gi = (settings.gi_mean_days, settings.gi_sd_days)
+    # diagnostics on every draw (the run's own checks may have thinned them)
+    names, values = summaries.reported_quantities(model, positions)
+    diag = diagnose(names, values) if N >= 4 else {}
+    full_spec = options_from_spec(model.spec, settings)
+    result = {
+        "schema_version": SCHEMA_VERSION,
+        "generated_at": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "status": final.get("status"),
+        "series": series.summary(),
+        "spec": dict(options) if options is not None else full_spec,
+        "spec_resolved": full_spec,
+        "seed": settings.seed,
+        "diagnostics": {
+            "converged": bool(diag.get("converged", False)),
+            "rhat_max": diag.get("rhat_max"),
+            "ess_bulk_min": diag.get("ess_bulk_min"),
+            "ess_tail_min": diag.get("ess_tail_min"),
+            "chains": int(C),
+            "draws_per_chain": int(N),
+            "seconds": (final.get("timings") or {}).get("total_seconds"),
+            "criterion": f"max R-hat < {RHAT_MAX} and min bulk and tail ESS >= {ESS_MIN}",
+            "parameters": diag.get("parameters", []),
+            "divergences": final["sampler"]["divergences"],
+            "chains_dropped": final["sampler"]["chains_dropped"],
+            "chains_restarted_in_warmup": final["sampler"]["chains_restarted_in_warmup"],
+            "timings": final.get("timings"),
+        },
+        "changepoints": summaries.changepoints(model, flat),
+        "segments": summaries.segments(model, flat, gi),
+        "current": summaries.current(model, flat, gi),
+        "band": summaries.band(model, flat, rng),
+        "projection": summaries.projection(model, flat, rng, settings.horizon),
+        "weekday": summaries.weekday_effects(model, flat),
+        "checks": summaries.checks(model, flat, rng),
+        "data_quality": {
+            "notes": [n.to_dict() for n in series.notes],
+            "rows_read": series.rows_read,
+            "rows_used": series.rows_used,
+        },
+        "generation_interval": None if gi is None else {"mean_days": gi[0], "sd_days": gi[1]},
+        "assumptions": assumptions(model),
+        "cautions": list(CAUTIONS),
+    }
+    if segment_support is not None:
+        result["segment_support"] = segment_support
+    return result
