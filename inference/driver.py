@@ -157,6 +157,9 @@ def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time
         state = init_state(target, starts)
     timings["init_seconds"] = clock() - t0
     progress.mode_lp = float(mode_lp[0])
+    # a first band from the starting points, so a watcher sees the fit at once
+    yield progress.snapshot("warmup", 0, W, positions=state.position)
+    last_yield = clock()
 
     # -- warm-up
     eps = _initial_step_size(rng, state, target, chol)
@@ -165,7 +168,6 @@ def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time
     it = 0
     restarted = 0
     stopped = False
-    last_yield = clock()
     for kind, length in warmup_schedule(W):
         win_pos, win_lp = [], []
         last_window = kind == "fast" and it + length >= W
@@ -412,6 +414,8 @@ class _Progress:
             "iteration": int(iteration),
             "warmup_iterations": int(warmup),
             "elapsed_seconds": round(self.clock() - self.t0, 3),
+            "interval_days": int(model.interval_days),
+            "series_end": str(model.series.end),
             "chains": int(self.chains),
             "draws_per_chain": int(max(0, iteration - warmup)) if phase in ("sampling", "done") else 0,
             "draws_requested": int(self.settings.draws),
@@ -441,6 +445,7 @@ class _Progress:
         snap["current"] = summaries.current(model, flat, self.gi)
         snap["projection"] = summaries.projection(model, flat, self.rng, self.settings.horizon)
         snap["weekday"] = summaries.weekday_effects(model, flat)
+        snap["checks"] = summaries.checks(model, flat, self.rng)
         return snap
 
 
@@ -479,6 +484,8 @@ def diagnose(names, values):
         "ess_tail_min": _num(et.min()),
         "parameters": rows,
         "criterion": f"max R-hat < {RHAT_MAX} and min bulk and tail ESS >= {ESS_MIN}",
+        "rhat_threshold": RHAT_MAX,
+        "ess_threshold": ESS_MIN,
     }
 
 
@@ -491,7 +498,8 @@ def _traces(names, values, points=150):
     flat = num_list(sub, 5)
     k = idx.size
     return {
-        "iteration": [int(i) for i in idx],
+        "draw": [int(i) + 1 for i in idx],  # 1-based draw numbers after warm-up
+        "thin": int(stride),
         "names": list(names),
         "values": [[flat[(p * C + c) * k:(p * C + c + 1) * k] for c in range(C)] for p in range(P)],
     }

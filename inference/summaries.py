@@ -161,8 +161,8 @@ def changepoint_histograms(model, theta, bins_per_interval=1):
         change date, fractions of draws).
     """
     q = model.constrain(theta)
-    n_bins = int(model.n - 1) * bins_per_interval
-    edges = np.linspace(0.0, model.t_end, n_bins + 1) * model.interval_days
+    n_bins = int(model.n) * bins_per_interval
+    edges = np.linspace(0.0, model.t_end, n_bins + 1) * model.interval_days  # whole intervals
     counts = []
     for j in range(model.K - 1):
         h, _ = np.histogram(q["knot_days"][:, j], bins=edges)
@@ -191,7 +191,8 @@ def segments(model, theta, gi=None):
             {
                 "index": j + 1,
                 "start_date": date_of_day(model, edges[j]),
-                "end_date": date_of_day(model, edges[j + 1]),
+                # the last day the segment covers (the series ends at n intervals)
+                "end_date": date_of_day(model, edges[j + 1] - 1e-9),
                 "start_day": _f(edges[j]),
                 "end_day": _f(edges[j + 1]),
                 "growth_rate_per_day": rate_summary(r),
