@@ -1,0 +1,111 @@
+"""The body of a fit on a worker: read the run from the store, sample, write back.
+
+The same function runs in a local worker process and inside the Celery task;
+its only input is the store location and the run id.
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+import time
+
+from inference.errors import InputError
+from inference.fitting import fit_result
+from inference.series import Series
+
+from .runs import now_iso
+from .store import FINISHED, StoreSink, open_store
+from .version import CODE_VERSION
+
+#: The worker re-reads the stop flag at most this often (seconds).
+STOP_POLL = 0.25
+#: ... and writes a heartbeat at least this often while sampling.
+HEARTBEAT_EVERY = 5.0
+
+
+def execute_run(store_location, run_id, *, store=None):
+    """Fit one stored run; returns its final status.
+
+    Parameters
+    ----------
+    store_location : str
+        Where to open the run store (see :func:`app.store.open_store`).
+    run_id : str
+    store : RunStore, optional
+        An already open store (tests); otherwise opened from the location.
+    """
+    store = store or open_store(store_location)
+    rec = store.get_run(run_id)
+    if rec is None:
+        return "missing"
+    if rec["status"] in FINISHED:
+        return rec["status"]  # stopped while queued, or delivered twice
+    if rec.get("code_version") not in (None, CODE_VERSION):
+        store.update_run(
+            run_id, status="failed", finished_at=now_iso(),
+            reason=(f"this worker runs engine version {CODE_VERSION} but the run was made by "
+                    f"version {rec.get('code_version')}; update the worker and resubmit"),
+        )
+        return "failed"
+    if store.stop_requested(run_id):
+        store.update_run(run_id, status="stopped", reason="stopped before it started", finished_at=now_iso())
+        return "stopped"
+    started = time.time()
+    store.heartbeat(run_id, started)
+    store.update_run(run_id, status="running", started_at=now_iso(),
+                     worker=f"{socket.gethostname()}:{os.getpid()}")
+    beat = {"t": started, "stop_t": 0.0, "stop": False}
+
+    def on_snapshot(snap):
+        store.put_snapshot(run_id, snap)
+        store.heartbeat(run_id, time.time())
+        beat["t"] = time.time()
+
+    def should_stop():
+        now = time.time()
+        if now - beat["stop_t"] > STOP_POLL:
+            beat["stop_t"] = now
+            beat["stop"] = store.stop_requested(run_id)
+            if now - beat["t"] > HEARTBEAT_EVERY:
+                store.heartbeat(run_id, now)
+                beat["t"] = now
+        return beat["stop"]
+
+    try:
+        series = Series.from_dict(store.get_series(run_id))
+        result, final = fit_result(
+            series, rec["options"], sink=StoreSink(store, run_id),
+            on_snapshot=on_snapshot, should_stop=should_stop,
+        )
+        if final is not None:
+            store.put_snapshot(run_id, final)
+        if result is not None:
+            result["run_id"] = run_id
+            store.put_result(run_id, result)
+        status = final["status"] if final else "failed"
+        fields = {
+            "status": status,
+            "finished_at": now_iso(),
+            "seconds": round(time.time() - started, 3),
+            "converged": bool(result and result["diagnostics"]["converged"]),
+            "draws_per_chain": final.get("draws_per_chain") if final else 0,
+        }
+        if status == "stopped":
+            fields["reason"] = "stopped by request; the draws so far are kept" if result else \
+                "stopped during warm-up; no draws were kept"
+        elif status == "unconverged":
+            fields["reason"] = "the time budget or draw limit ended before convergence"
+        store.update_run(run_id, **fields)
+        return status
+    except InputError as exc:
+        store.update_run(run_id, status="failed", reason=str(exc), finished_at=now_iso())
+        return "failed"
+    except MemoryError:
+        store.update_run(run_id, status="failed", finished_at=now_iso(),
+                         reason="the worker ran out of memory; try fewer chains or draws")
+        return "failed"
+    except Exception as exc:  # report, never hang
+        store.update_run(run_id, status="failed", finished_at=now_iso(),
+                         reason=f"internal error in the worker ({type(exc).__name__}: {exc})")
+        return "failed"

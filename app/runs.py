@@ -1,0 +1,193 @@
+"""Runs as first-class objects: create, submit, stop, watch, reap.
+
+A run holds its input series (and hash), options, seed, owner, status,
+snapshots, draws, result and timings. :class:`RunService` is what the
+dashboard, the JSON API and the CLI call; it puts the run in the store and
+hands only its id to an executor (local worker processes or a Celery task),
+never a session, cookie or request header.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import secrets
+import socket
+import time
+
+from inference.errors import InputError
+from inference.model import TrendModel
+from inference.series import Series
+from inference.spec import spec_from_options
+
+from .store import FINISHED, valid_run_id
+from .version import CODE_VERSION
+
+#: A running run whose worker has not written a heartbeat for this long is
+#: marked failed (its worker died or lost the store).
+HEARTBEAT_TIMEOUT = 60.0
+
+
+def now_iso():
+    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+
+
+def new_run_id():
+    """16 random hex digits."""
+    return secrets.token_hex(8)
+
+
+def validate_fit(series, options):
+    """Validate options against the series the way a fit will: raises InputError."""
+    model_spec, _ = spec_from_options(options)
+    TrendModel(series, model_spec)
+
+
+class RunService:
+    """Create, submit, stop and read runs.
+
+    Parameters
+    ----------
+    store : RunStore
+    executor : object with ``submit(run_id)``
+    instance : str, optional
+        Identifies this server process; local runs left queued or running
+        by an earlier instance are marked failed on start.
+    clock : callable
+        Wall-clock seconds.
+    """
+
+    def __init__(self, store, executor, *, instance=None, clock=time.time):
+        self.store = store
+        self.executor = executor
+        self.instance = instance or f"{socket.gethostname()}:{os.getpid()}:{secrets.token_hex(4)}"
+        self.clock = clock
+
+    # -- creating
+    def submit(self, series, options, *, owner="local", kind="fit", parent=None):
+        """Validate, store and queue a run; returns its record.
+
+        Raises
+        ------
+        InputError
+            When the options do not fit the series (nothing is stored then).
+        """
+        if not isinstance(series, Series):
+            raise TypeError("series must be a Series")
+        validate_fit(series, options)
+        run_id = new_run_id()
+        record = {
+            "id": run_id,
+            "kind": kind,
+            "parent": parent,
+            "owner": owner,
+            "created_at": now_iso(),
+            "created_ts": self.clock(),
+            "series_name": series.name or "series",
+            "series_hash": series.content_hash(),
+            "series_start": str(series.start),
+            "series_end": str(series.end),
+            "interval_days": series.interval_days,
+            "segments": int(options.get("segments", 3)),
+            "options": dict(options),
+            "seed": int(options.get("seed", 1)),
+            "status": "queued",
+            "reason": None,
+            "converged": None,
+            "code_version": CODE_VERSION,
+            "server_instance": self.instance,
+        }
+        self.store.create_run(record, series.to_dict())
+        try:
+            self.executor.submit(run_id)
+        except Exception as exc:  # queue unreachable: the run must not look alive
+            self.store.update_run(run_id, status="failed", reason=f"could not queue the run: {exc}",
+                                  finished_at=now_iso())
+            raise QueueUnavailable(str(exc)) from exc
+        return record
+
+    def resubmit(self, run_id, *, owner):
+        """A new run with the same series and options as ``run_id``."""
+        rec = self.store.get_run(run_id)
+        if rec is None:
+            raise KeyError(run_id)
+        series = Series.from_dict(self.store.get_series(run_id))
+        return self.submit(series, rec["options"], owner=owner, kind=rec.get("kind", "fit"), parent=run_id)
+
+    # -- controlling
+    def stop(self, run_id, *, user=None, admin=False):
+        """Ask a run to stop (keeps its draws). Only its owner or an admin may."""
+        rec = self.get(run_id)
+        if rec is None:
+            raise KeyError(run_id)
+        if user is not None and not admin and rec.get("owner") != user:
+            raise PermissionError("only the run's owner or an admin can stop it")
+        if rec["status"] in FINISHED:
+            return rec
+        self.store.request_stop(run_id)
+        if rec["status"] == "queued":
+            rec = self.store.update_run(run_id, status="stopped", reason="stopped before it started",
+                                        finished_at=now_iso())
+        return rec
+
+    def delete(self, run_id, *, user=None, admin=False):
+        rec = self.store.get_run(run_id)
+        if rec is None:
+            raise KeyError(run_id)
+        if user is not None and not admin and rec.get("owner") != user:
+            raise PermissionError("only the run's owner or an admin can delete it")
+        if rec["status"] not in FINISHED:
+            self.store.request_stop(run_id)
+        self.store.delete_run(run_id)
+
+    # -- reading
+    def get(self, run_id):
+        """The run record (None for unknown or malformed ids), reaped if stale."""
+        if not valid_run_id(run_id):
+            return None
+        rec = self.store.get_run(run_id)
+        if rec is None:
+            return None
+        return self._reap(rec)
+
+    def list(self, limit=200):
+        return [self._reap(r) for r in self.store.list_runs(limit)]
+
+    def snapshot(self, run_id):
+        return self.store.get_snapshot(run_id) if valid_run_id(run_id) else None
+
+    def result(self, run_id):
+        return self.store.get_result(run_id) if valid_run_id(run_id) else None
+
+    def series(self, run_id):
+        d = self.store.get_series(run_id) if valid_run_id(run_id) else None
+        return None if d is None else Series.from_dict(d)
+
+    def _reap(self, rec):
+        """Mark a running run failed when its worker stopped beating."""
+        if rec["status"] != "running":
+            return rec
+        beat = self.store.last_heartbeat(rec["id"])
+        if beat is not None and self.clock() - beat > HEARTBEAT_TIMEOUT:
+            return self.store.update_run(
+                rec["id"], status="failed", finished_at=now_iso(),
+                reason=f"the worker stopped responding (no heartbeat for {HEARTBEAT_TIMEOUT:.0f} s); "
+                       "it may have been killed. Resubmit the run.",
+            )
+        return rec
+
+    def fail_orphans(self):
+        """On a local server's start: runs an earlier server left unfinished are marked failed."""
+        n = 0
+        for rec in self.store.list_runs(10_000):
+            if rec["status"] in ("queued", "running") and rec.get("server_instance") != self.instance:
+                self.store.update_run(
+                    rec["id"], status="failed", finished_at=now_iso(),
+                    reason="the server stopped before this run finished; resubmit it",
+                )
+                n += 1
+        return n
+
+
+class QueueUnavailable(RuntimeError):
+    """The executor could not take the run (e.g. Redis unreachable)."""

@@ -1,0 +1,153 @@
+"""Run stores: where runs, their snapshots, draws and results live.
+
+One small interface (:class:`RunStore`), several backends: a diskcache
+folder for the laptop (:mod:`app.store.disk`) and Redis for the team server
+(:mod:`app.store.redis_store`). Workers write, browsers read; every backend
+passes the same contract tests (tests/app/test_store_contract.py).
+
+:func:`open_store` builds a store from a location string, so a worker
+process can open the same store from plain data: a folder path (or
+``disk:PATH``) or a ``redis://`` URL.
+"""
+
+from __future__ import annotations
+
+import re
+
+RUN_ID = re.compile(r"^[0-9a-f]{16}$")
+STATUSES = ("queued", "running", "converged", "unconverged", "stopped", "failed")
+FINISHED = frozenset({"converged", "unconverged", "stopped", "failed"})
+
+
+def valid_run_id(run_id):
+    """True for a well-formed run id (16 lowercase hex digits). Callers check
+    ids from requests with this before any store lookup is built from them."""
+    return isinstance(run_id, str) and bool(RUN_ID.match(run_id))
+
+
+class RunStore:
+    """The run-store contract. Backends implement every method.
+
+    Records are JSON-safe dicts; draws are numpy arrays. Methods taking a
+    ``run_id`` expect a valid id (see :func:`valid_run_id`).
+    """
+
+    location = ""
+
+    # -- runs
+    def create_run(self, record, series):
+        """Store a new run record and its input series (dict)."""
+        raise NotImplementedError
+
+    def get_run(self, run_id):
+        """The run record, or None."""
+        raise NotImplementedError
+
+    def update_run(self, run_id, **fields):
+        """Merge ``fields`` into the record; returns the new record (None if absent)."""
+        raise NotImplementedError
+
+    def list_runs(self, limit=200):
+        """Run records, newest first."""
+        raise NotImplementedError
+
+    def delete_run(self, run_id):
+        """Remove a run and everything stored for it."""
+        raise NotImplementedError
+
+    def get_series(self, run_id):
+        """The run's input series (``Series.to_dict()``), or None."""
+        raise NotImplementedError
+
+    # -- progress
+    def put_snapshot(self, run_id, snapshot):
+        """Replace the run's latest snapshot."""
+        raise NotImplementedError
+
+    def get_snapshot(self, run_id):
+        """The latest snapshot, or None."""
+        raise NotImplementedError
+
+    def put_result(self, run_id, result):
+        raise NotImplementedError
+
+    def get_result(self, run_id):
+        raise NotImplementedError
+
+    # -- draws (the engine's sink contract, per run)
+    def reset_draws(self, run_id, chains, names):
+        raise NotImplementedError
+
+    def append_draws(self, run_id, positions, log_density):
+        raise NotImplementedError
+
+    def read_draws(self, run_id):
+        """(positions (chains, draws, dim), log_density (chains, draws)) or empty arrays."""
+        raise NotImplementedError
+
+    # -- control
+    def request_stop(self, run_id):
+        raise NotImplementedError
+
+    def stop_requested(self, run_id):
+        raise NotImplementedError
+
+    def heartbeat(self, run_id, when):
+        raise NotImplementedError
+
+    def last_heartbeat(self, run_id):
+        raise NotImplementedError
+
+    # -- uploads waiting to become runs
+    def put_upload(self, key, data, ttl_seconds=86400):
+        raise NotImplementedError
+
+    def get_upload(self, key):
+        raise NotImplementedError
+
+    # -- liveness
+    def ping(self):
+        """True when the store answers."""
+        raise NotImplementedError
+
+
+def open_store(location):
+    """Open a run store from a location string.
+
+    Parameters
+    ----------
+    location : str
+        ``redis://HOST:PORT/DB`` for Redis; otherwise a folder path,
+        optionally prefixed ``disk:``.
+    """
+    if location.startswith(("redis://", "rediss://", "unix://")):
+        from .redis_store import RedisRunStore
+
+        return RedisRunStore(location)
+    from .disk import DiskRunStore
+
+    return DiskRunStore(location[5:] if location.startswith("disk:") else location)
+
+
+class StoreSink:
+    """The engine's draw-sink contract on top of a run store."""
+
+    def __init__(self, store, run_id):
+        self.store = store
+        self.run_id = run_id
+        self._draws = 0
+
+    def reset(self, chains, names):
+        self.store.reset_draws(self.run_id, chains, list(names))
+        self._draws = 0
+
+    def append(self, positions, log_density):
+        self.store.append_draws(self.run_id, positions, log_density)
+        self._draws += positions.shape[1]
+
+    def read(self):
+        return self.store.read_draws(self.run_id)
+
+    @property
+    def draws(self):
+        return self._draws

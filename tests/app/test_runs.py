@@ -1,0 +1,131 @@
+"""Runs: submit, execute, stop, reap, survive restarts."""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+import pytest
+
+from app.executors import InlineExecutor
+from app.runs import RunService
+from app.store.disk import DiskRunStore
+from inference.errors import InputError
+from inference.simulate import simulate
+
+
+@pytest.fixture
+def series():
+    s, _ = simulate(np.random.default_rng(3), "2026-01-05", 90, start_level=20.0,
+                    knot_days=[45.0], growth_rate_per_day=[0.03, -0.02], dispersion=40.0)
+    return s
+
+
+FAST = {"segments": 2, "chains": 4, "draws": 100, "seed": 5, "weekday": False}
+
+
+def test_a_run_goes_from_queued_to_converged_with_result_and_draws(tmp_path, series):
+    store = DiskRunStore(str(tmp_path))
+    svc = RunService(store, InlineExecutor(store))
+    rec = svc.submit(series, FAST, owner="ana")
+    done = svc.get(rec["id"])
+    assert done["status"] in ("converged", "unconverged")
+    assert done["owner"] == "ana" and done["series_hash"] == series.content_hash()
+    assert svc.result(rec["id"])["run_id"] == rec["id"]
+    assert svc.snapshot(rec["id"])["phase"] == "done"
+    pos, _ = store.read_draws(rec["id"])
+    assert pos.shape[0] == 4 and pos.shape[1] == done["draws_per_chain"]
+
+
+def test_bad_options_store_nothing(tmp_path, series):
+    store = DiskRunStore(str(tmp_path))
+    svc = RunService(store, InlineExecutor(store))
+    with pytest.raises(InputError, match="segments"):
+        svc.submit(series, dict(FAST, segments=9))
+    assert svc.list() == []
+
+
+def test_stop_before_start_and_owner_rules(tmp_path, series):
+    store = DiskRunStore(str(tmp_path))
+
+    class Holding:
+        def submit(self, run_id):
+            pass  # keeps the run queued
+
+    svc = RunService(store, Holding())
+    rec = svc.submit(series, FAST, owner="ana")
+    with pytest.raises(PermissionError):
+        svc.stop(rec["id"], user="bo")
+    assert svc.stop(rec["id"], user="bo", admin=True)["status"] == "stopped"
+    with pytest.raises(PermissionError):
+        svc.delete(rec["id"], user="bo")
+    svc.delete(rec["id"], user="ana")
+    assert svc.get(rec["id"]) is None
+
+
+def test_a_stop_request_during_sampling_keeps_the_draws(tmp_path, series):
+    store = DiskRunStore(str(tmp_path))
+    rec = RunService(store, type("H", (), {"submit": lambda self, r: None})()).submit(
+        series, dict(FAST, draws=100000), owner="ana")
+    calls = {"n": 0}
+    real = store.stop_requested
+
+    def stop_after_a_while(run_id):
+        calls["n"] += 1
+        return calls["n"] > 40 or real(run_id)
+
+    store.stop_requested = stop_after_a_while
+    import app.execute as ex
+
+    old = ex.STOP_POLL
+    ex.STOP_POLL = 0.0
+    try:
+        status = ex.execute_run(store.location, rec["id"], store=store)
+    finally:
+        ex.STOP_POLL = old
+    assert status == "stopped"
+    after = store.get_run(rec["id"])
+    assert after["status"] == "stopped"
+    assert "kept" in after["reason"] or "no draws" in after["reason"]
+
+
+def test_silent_worker_is_reaped_as_failed(tmp_path, series):
+    store = DiskRunStore(str(tmp_path))
+    now = [1000.0]
+    svc = RunService(store, type("H", (), {"submit": lambda self, r: None})(), clock=lambda: now[0])
+    rec = svc.submit(series, FAST)
+    store.update_run(rec["id"], status="running")
+    store.heartbeat(rec["id"], 1000.0)
+    now[0] = 1030.0
+    assert svc.get(rec["id"])["status"] == "running"
+    now[0] = 1061.0
+    got = svc.get(rec["id"])
+    assert got["status"] == "failed" and "heartbeat" in got["reason"]
+
+
+def test_runs_survive_a_restart_and_orphans_are_marked(tmp_path, series):
+    store = DiskRunStore(str(tmp_path))
+    svc = RunService(store, InlineExecutor(store), instance="first")
+    done = svc.submit(series, FAST)
+    held = RunService(store, type("H", (), {"submit": lambda self, r: None})(), instance="first").submit(series, FAST)
+    store.close()
+    # a new server process opens the same folder
+    store2 = DiskRunStore(str(tmp_path))
+    svc2 = RunService(store2, InlineExecutor(store2), instance="second")
+    assert svc2.fail_orphans() == 1
+    assert svc2.get(held["id"])["status"] == "failed"
+    assert svc2.get(done["id"])["status"] in ("converged", "unconverged")
+    assert svc2.result(done["id"]) is not None
+    again = svc2.resubmit(held["id"], owner="ana")
+    assert svc2.get(again["id"])["status"] in ("converged", "unconverged")
+    assert again["parent"] == held["id"]
+
+
+def test_version_mismatch_is_reported_not_hung(tmp_path, series):
+    store = DiskRunStore(str(tmp_path))
+    rec = RunService(store, type("H", (), {"submit": lambda self, r: None})()).submit(series, FAST)
+    store.update_run(rec["id"], code_version="0.0.0-other")
+    from app.execute import execute_run
+
+    assert execute_run(store.location, rec["id"], store=store) == "failed"
+    assert "version" in store.get_run(rec["id"])["reason"]
