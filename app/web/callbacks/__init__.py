@@ -1,0 +1,16 @@
+"""Dashboard callbacks: plain functions, registered on an app by :func:`register`.
+
+Each module keeps its callback bodies as module-level functions (testable
+without a browser) and a ``register(app)`` that wires them to components.
+"""
+
+from __future__ import annotations
+
+
+def register(app):
+    from . import changes, loading, panels, running
+
+    loading.register(app)
+    changes.register(app)
+    running.register(app)
+    panels.register(app)

@@ -1,0 +1,182 @@
+"""Loading a series (upload, sample, region) or a run (list click, URL)."""
+
+from __future__ import annotations
+
+import hashlib
+import os
+from urllib.parse import parse_qs
+
+from dash import Input, Output, State, ctx, html, no_update
+
+from inference.errors import InputError
+from inference.reader import list_regions, read_series
+
+from .. import ids
+from ..context import decode_upload, get_series, put_series, services
+
+# outputs of load(), in order
+CONTROL_IDS = (ids.FAMILY, ids.WEEKDAY, ids.JUMPS, ids.GROWTH_PRIOR, ids.MIN_SEGMENT, ids.DROP_LAST,
+               ids.GI_MEAN, ids.GI_SD, ids.HORIZON, ids.CHAINS, ids.DRAWS, ids.SEED, ids.SEGMENTS)
+
+
+def controls_from_options(options, interval_days):
+    """Control values (in CONTROL_IDS order) that reproduce a run's options."""
+    o = options
+    return [
+        o.get("family", "negbin"),
+        ["on"] if o.get("weekday", interval_days == 1) in (True, None) and interval_days == 1 else [],
+        ["on"] if o.get("jumps") else [],
+        o.get("growth_rate_prior_pct_per_day", 20),
+        o.get("min_segment_days"),
+        o.get("drop_last", 0),
+        o.get("gi_mean"),
+        o.get("gi_sd"),
+        o.get("horizon", 14),
+        o.get("chains", 8),
+        o.get("draws", 250),
+        o.get("seed", 1),
+        o.get("segments", 3),
+    ]
+
+
+def defaults_for(series):
+    """Control values that depend on the interval, others left as they are."""
+    out = [no_update] * len(CONTROL_IDS)
+    out[CONTROL_IDS.index(ids.WEEKDAY)] = ["on"] if series.interval_days == 1 else []
+    out[CONTROL_IDS.index(ids.HORIZON)] = 14 if series.interval_days == 1 else 4
+    return out
+
+
+def run_from_search(search):
+    """The run id in a ``?run=...`` query string, or None."""
+    if not search:
+        return None
+    values = parse_qs(search.lstrip("?")).get("run")
+    return values[0] if values else None
+
+
+def _read(store, data, label, region=None):
+    """Series from file bytes; for a long-format file also the regions and raw key."""
+    regions = list_regions(data, name=label)
+    raw_key = None
+    if regions:
+        raw_key = "raw-" + hashlib.sha256(data).hexdigest()[:24]
+        store.put_upload(raw_key, {"bytes": data, "label": label})
+        region = region if region in regions else regions[0]
+        series = read_series(data, name=label, region=region)
+    else:
+        series = read_series(data, name=label)
+    return series, regions, region, raw_key
+
+
+def load(contents, sample, region, search, active_cell, filename, series_key):
+    """Load what the analyst asked for; on bad input keep what is on screen.
+
+    Returns, in order: series key, change dates, run id, region options,
+    region value, region row style, error message, url search, then the
+    control values (CONTROL_IDS order).
+    """
+    svc = services()
+    store = svc.store
+    trig = ctx.triggered_id
+    if trig is None and run_from_search(search):
+        trig = ids.URL  # the page opened on a run's address
+    keep = [no_update] * len(CONTROL_IDS)
+    hidden = {"display": "none"}
+    try:
+        if trig == ids.URL or trig == ids.RUN_LIST:
+            run_id = run_from_search(search) if trig == ids.URL else (active_cell or {}).get("row_id")
+            if not run_id:
+                return [no_update] * (8 + len(CONTROL_IDS))
+            rec = svc.runs.get(run_id)
+            if rec is None:
+                msg = "That run does not exist (it may have been deleted)."
+                return [no_update] * 6 + [msg, no_update] + keep
+            series = svc.runs.series(run_id)
+            key = put_series(store, series, label=rec.get("series_name", ""))
+            options = rec["options"]
+            cps = list(options.get("changepoint_priors") or [])
+            search_out = no_update if trig == ids.URL else f"?run={run_id}"
+            return [key, cps, run_id, [], None, hidden, "", search_out] + controls_from_options(
+                options, series.interval_days)
+        if trig == ids.UPLOAD:
+            data = decode_upload(contents, svc.max_upload_bytes)
+            label = os.path.basename(filename or "uploaded file")
+            series, regions, region, raw_key = _read(store, data, label)
+        elif trig == ids.SAMPLE:
+            if not sample or os.path.basename(sample) != sample:
+                return [no_update] * (8 + len(CONTROL_IDS))
+            path = os.path.join(svc.samples_dir, sample)
+            with open(path, "rb") as fh:
+                data = fh.read()
+            series, regions, region, raw_key = _read(store, data, sample)
+        elif trig == ids.REGION:
+            _, rec = get_series(store, series_key)
+            raw = store.get_upload(rec["raw_key"]) if rec and rec.get("raw_key") else None
+            if raw is None:
+                return [no_update] * (8 + len(CONTROL_IDS))
+            series = read_series(raw["bytes"], name=raw["label"], region=region)
+            regions, raw_key = rec["regions"], rec["raw_key"]
+        else:
+            return [no_update] * (8 + len(CONTROL_IDS))
+    except InputError as exc:
+        return [no_update] * 6 + [str(exc), no_update] + keep
+    except OSError as exc:
+        return [no_update] * 6 + [f"Could not read the sample file: {exc}", no_update] + keep
+    key = put_series(store, series, raw_key=raw_key, regions=regions, region=region, label=series.name)
+    options = [{"label": r, "value": r} for r in regions]
+    style = {} if regions else hidden
+    return [key, [], None, options, region, style, "", ""] + defaults_for(series)
+
+
+def describe(series_key):
+    """Series summary and the data-quality notes beside the chart."""
+    series, rec = get_series(services().store, series_key)
+    if series is None:
+        return "", ""
+    unit = "days" if series.interval_days == 1 else "weeks"
+    kind = "daily" if series.interval_days == 1 else "weekly"
+    observed = int(series.observed.sum())
+    info = html.Div([
+        html.Strong(series.name or "series"),
+        html.Span(f": {series.n} {unit} ({kind}) from {series.start} to {series.end}; "
+                  f"{observed} values, total {series.total:,.0f}."),
+    ])
+    notes = list(series.notes)
+    if not notes:
+        return info, html.Div("Data quality: no changes were made to the data.", className="note-ok")
+    items = [html.Li(f"{n.message}") for n in notes[:50]]
+    more = [html.Li(f"... and {len(notes) - 50} more")] if len(notes) > 50 else []
+    return info, html.Div([
+        html.Div(f"Data quality: {len(notes)} change{'s' if len(notes) != 1 else ''} made to the data",
+                 className="note-title"),
+        html.Ul(items + more),
+    ])
+
+
+def register(app):
+    app.callback(
+        Output(ids.SERIES_KEY, "data"),
+        Output(ids.CHANGEPOINTS, "data", allow_duplicate=True),
+        Output(ids.RUN_ID, "data"),
+        Output(ids.REGION, "options"),
+        Output(ids.REGION, "value"),
+        Output(ids.REGION_ROW, "style"),
+        Output(ids.DATA_ERROR, "children"),
+        Output(ids.URL, "search"),
+        *[Output(c, "value") for c in CONTROL_IDS],
+        Input(ids.UPLOAD, "contents"),
+        Input(ids.SAMPLE, "value"),
+        Input(ids.REGION, "value"),
+        Input(ids.URL, "search"),
+        Input(ids.RUN_LIST, "active_cell"),
+        State(ids.UPLOAD, "filename"),
+        State(ids.SERIES_KEY, "data"),
+        prevent_initial_call="initial_duplicate",
+    )(load)
+    app.callback(
+        Output(ids.SERIES_INFO, "children"),
+        Output(ids.DATA_NOTES, "children"),
+        Input(ids.SERIES_KEY, "data"),
+    )(describe)
+

@@ -1,0 +1,232 @@
+"""The result panels: drawn in full when what they show changes, patched while a run streams.
+
+``render`` rebuilds every panel when the series, the change-date lines, the
+display options, the highlighted segment or the run change. ``poll`` runs on
+the interval timer while the shown run is unfinished: it reads the run's latest
+snapshot from the store and updates the figures in place with ``dash.Patch``
+(only data arrays and notes go over the wire), rebuilding a panel only when
+its number of traces changed.
+"""
+
+from __future__ import annotations
+
+from dash import Input, Output, Patch, State, html, no_update
+
+from ... import wording
+from ...store import FINISHED
+from .. import figures as F
+from .. import ids
+from ..context import current_user, get_series, services
+
+PANEL_OUTPUTS = (
+    (ids.MAIN, "figure"), (ids.CHANGE_HIST, "figure"), (ids.RATES, "figure"), (ids.TRACE, "figure"),
+    (ids.TRACE_PARAM, "options"), (ids.TRACE_PARAM, "value"), (ids.WEEKDAY_FIG, "figure"),
+    (ids.RESIDUALS, "figure"), (ids.DIAG_TABLE, "data"), (ids.DIAG_SUMMARY, "children"),
+    (ids.HEADLINE, "children"), (ids.PROGRESS, "children"), (ids.STATUS_BANNER, "children"),
+    (ids.STATUS_BANNER, "className"), (ids.FIGURE_RUN, "data"), (ids.POLL, "disabled"),
+    (ids.STOP, "disabled"), (ids.BRIEF_LINK, "href"), (ids.BRIEF_LINK, "className"),
+)
+
+
+def to_patch(updates):
+    """A dash.Patch from a figure-updates dict (see app.web.figures)."""
+    p = Patch()
+    for i, props in (updates.get("traces") or {}).items():
+        for key, value in props.items():
+            p["data"][int(i)][key] = value
+    for key in ("annotations", "shapes"):
+        for i, item in (updates.get(key) or {}).items():
+            p["layout"][key][int(i)] = item
+    if "title" in updates:
+        p["layout"]["title"]["text"] = updates["title"]
+    return p
+
+
+def _run_view(run_id):
+    """(record, snapshot) of the shown run, or (None, None)."""
+    if not run_id:
+        return None, None
+    svc = services()
+    rec = svc.runs.get(run_id)
+    if rec is None:
+        return None, None
+    return rec, svc.runs.snapshot(run_id)
+
+
+def headline_children(snapshot):
+    out = []
+    for label, value, detail in wording.headline_stats(snapshot):
+        out.append(html.Div(className="stat", children=[
+            html.Div(label, className="stat-label"), html.Div(value, className="stat-value"),
+            html.Div(detail, className="stat-sub"),
+        ]))
+    return out
+
+
+def _trace_choice(snapshot, current):
+    names = ((snapshot or {}).get("traces") or {}).get("names") or []
+    options = [{"label": n, "value": n} for n in names]
+    if current in names:
+        return options, current
+    params = ((snapshot or {}).get("diagnostics") or {}).get("parameters") or []
+    worst = max(params, key=lambda p: p.get("rhat") or 0.0, default=None)
+    return options, (worst["name"] if worst else (names[0] if names else None))
+
+
+def _controls_state(rec):
+    """(poll disabled, stop disabled, brief href, brief class)."""
+    if rec is None:
+        return True, True, "#", "btn link-btn disabled"
+    user, admin = current_user()
+    live = rec["status"] not in FINISHED
+    may_stop = admin or rec.get("owner") == user
+    return (not live, not (live and may_stop), f"/brief/{rec['id']}", "btn link-btn")
+
+
+def _state(run_id, snapshot, counts, trace_param):
+    return {"run": run_id, "iteration": (snapshot or {}).get("iteration"),
+            "phase": (snapshot or {}).get("phase"), "counts": counts, "trace_param": trace_param}
+
+
+def render(series_key, cps, style, scale, highlight, run_id, trace_param):
+    """Every panel, drawn from scratch."""
+    svc = services()
+    series, _ = get_series(svc.store, series_key)
+    rec, snap = _run_view(run_id)
+    if series is None:
+        blank = F.empty_figure("Load a series to begin.")
+        return [blank, F.empty_figure(""), F.empty_figure("No fit yet."), F.empty_figure(""), [], None,
+                F.empty_figure(""), F.empty_figure(""), [], "", [], "", "", "", None, True, True, "#",
+                "btn link-btn disabled"]
+    sd = series.to_dict()
+    # a run on another series (e.g. a new file was loaded) is not drawn over this one
+    if rec is not None and rec.get("series_hash") != series.content_hash():
+        rec, snap = None, None
+    log_y = scale == "log"
+    main = F.main_figure(sd, snap, cps or [], log_y=log_y, style=style, highlight_segment=highlight)
+    hist = F.changepoint_figure(sd, snap, highlight_segment=highlight)
+    rates = F.rates_figure(snap, highlight_segment=highlight)
+    options, trace_param = _trace_choice(snap, trace_param)
+    trace = F.trace_figure(snap, trace_param)
+    weekday = F.weekday_figure(snap)
+    resid = F.residual_figure(snap)
+    banner_cls, banner = wording.status_line(rec, snap)
+    poll_off, stop_off, href, brief_cls = _controls_state(rec)
+    counts = {"hist": len(hist.data), "trace": len(trace.data), "resid": len(resid.data)}
+    return [main, hist, rates, trace, options, trace_param, weekday, resid,
+            F.diagnostics_rows(snap), F.diagnostics_summary(snap) if snap else "",
+            headline_children(snap), wording.progress_line(rec, snap), banner, f"banner {banner_cls}",
+            _state(run_id if rec else None, snap, counts, trace_param), poll_off, stop_off, href, brief_cls]
+
+
+def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
+    """Patch the panels with the run's newest snapshot (no-op when nothing changed)."""
+    keep = [no_update] * len(PANEL_OUTPUTS)
+    rec, snap = _run_view(run_id)
+    if rec is None:
+        keep[PANEL_OUTPUTS.index((ids.POLL, "disabled"))] = True
+        return keep
+    series, _ = get_series(services().store, series_key)
+    state = state or {}
+    out = list(keep)
+    banner_cls, banner = wording.status_line(rec, snap)
+    poll_off, stop_off, href, brief_cls = _controls_state(rec)
+    out[11:14] = [wording.progress_line(rec, snap), banner, f"banner {banner_cls}"]
+    out[15:19] = [poll_off, stop_off, href, brief_cls]
+    if series is None or snap is None or state.get("run") != run_id or (
+            snap.get("iteration") == state.get("iteration") and snap.get("phase") == state.get("phase")):
+        return out
+    sd = series.to_dict()
+    counts = dict(state.get("counts") or {})
+    out[0] = to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight))
+    hist_up = F.changepoint_updates(sd, snap)
+    if hist_up["trace_count"] and hist_up["trace_count"] == counts.get("hist"):
+        out[1] = to_patch(hist_up)
+    else:
+        fig = F.changepoint_figure(sd, snap, highlight_segment=highlight)
+        out[1], counts["hist"] = fig, len(fig.data)
+    out[2] = F.rates_figure(snap, highlight_segment=highlight)
+    options, param = _trace_choice(snap, trace_param)
+    tr_up = F.trace_updates(snap, param)
+    if tr_up["trace_count"] and tr_up["trace_count"] == counts.get("trace") and param == state.get("trace_param"):
+        out[3] = to_patch(tr_up)
+    else:
+        fig = F.trace_figure(snap, param)
+        out[3], counts["trace"] = fig, len(fig.data)
+    out[4], out[5] = options, param
+    out[6] = F.weekday_figure(snap)
+    res_up = F.residual_updates(snap)
+    if res_up["trace_count"] and res_up["trace_count"] == counts.get("resid"):
+        out[7] = to_patch(res_up)
+    else:
+        fig = F.residual_figure(snap)
+        out[7], counts["resid"] = fig, len(fig.data)
+    out[8] = F.diagnostics_rows(snap)
+    out[9] = F.diagnostics_summary(snap)
+    out[10] = headline_children(snap)
+    out[14] = _state(run_id, snap, counts, param)
+    return out
+
+
+def highlight(click, current):
+    """Clicking a segment's row in the rates chart highlights it; clicking again clears."""
+    points = (click or {}).get("points") or []
+    if not points:
+        return no_update
+    seg = points[0].get("customdata")
+    if isinstance(seg, (list, tuple)):
+        seg = seg[0] if seg else None
+    if seg is None:
+        return no_update
+    seg = int(seg)
+    return None if seg == current else seg
+
+
+def sync_zoom(relayout):
+    """Zooming the main chart's date axis zooms the change-date chart to match."""
+    relayout = relayout or {}
+    p = Patch()
+    if "xaxis.range[0]" in relayout and "xaxis.range[1]" in relayout:
+        p["layout"]["xaxis"]["range"] = [relayout["xaxis.range[0]"], relayout["xaxis.range[1]"]]
+        p["layout"]["xaxis"]["autorange"] = False
+        return p
+    if relayout.get("xaxis.autorange"):
+        p["layout"]["xaxis"]["autorange"] = True
+        return p
+    return no_update
+
+
+def register(app):
+    outs = [Output(c, p) for c, p in PANEL_OUTPUTS]
+    app.callback(
+        *outs,
+        Input(ids.SERIES_KEY, "data"),
+        Input(ids.CHANGEPOINTS, "data"),
+        Input(ids.STYLE, "value"),
+        Input(ids.SCALE, "value"),
+        Input(ids.HIGHLIGHT, "data"),
+        Input(ids.RUN_ID, "data"),
+        Input(ids.TRACE_PARAM, "value"),
+    )(render)
+    app.callback(
+        *[Output(c, p, allow_duplicate=True) for c, p in PANEL_OUTPUTS],
+        Input(ids.POLL, "n_intervals"),
+        State(ids.RUN_ID, "data"),
+        State(ids.FIGURE_RUN, "data"),
+        State(ids.SERIES_KEY, "data"),
+        State(ids.CHANGEPOINTS, "data"),
+        State(ids.HIGHLIGHT, "data"),
+        State(ids.TRACE_PARAM, "value"),
+        prevent_initial_call=True,
+    )(poll)
+    app.callback(
+        Output(ids.HIGHLIGHT, "data"),
+        Input(ids.RATES, "clickData"),
+        State(ids.HIGHLIGHT, "data"),
+        prevent_initial_call=True,
+    )(highlight)
+    app.callback(
+        Output(ids.CHANGE_HIST, "figure", allow_duplicate=True),
+        Input(ids.MAIN, "relayoutData"),
+        prevent_initial_call=True,
+    )(sync_zoom)

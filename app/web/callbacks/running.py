@@ -1,0 +1,133 @@
+"""Fit and Stop, and the run list."""
+
+from __future__ import annotations
+
+from dash import Input, Output, State, ctx, no_update
+
+from inference.errors import InputError
+
+from ...runs import QueueUnavailable
+from .. import ids
+from ..context import current_user, get_series, services
+
+LABELS = {
+    "segments": "Segments", "family": "Observation model", "weekday": "Day-of-week effect",
+    "jumps": "Level jumps", "drop_last": "Leave out the last values",
+    "growth_rate_prior_pct_per_day": "Growth-rate prior", "min_segment_days": "Minimum segment length",
+    "gi_mean": "Generation interval mean", "gi_sd": "Generation interval sd", "horizon": "Projection horizon",
+    "chains": "Chains", "draws": "Draws per chain", "seed": "Seed", "changepoint_priors": "Change dates",
+}
+
+
+def options_from_controls(series, cps, segments, family, weekday, jumps, growth, min_seg, drop_last,
+                          gi_mean, gi_sd, horizon, chains, draws, seed):
+    """The fit options the controls describe (validated later by the engine)."""
+    opts = {
+        "segments": len(cps) + 1 if cps else segments,
+        "family": family,
+        "weekday": bool(weekday) and series.interval_days == 1,
+        "jumps": bool(jumps),
+        "growth_rate_prior_pct_per_day": growth,
+        "drop_last": drop_last or 0,
+        "horizon": horizon if horizon is not None else 14,
+        "chains": chains,
+        "draws": draws,
+        "seed": seed if seed is not None else 1,
+    }
+    if min_seg not in (None, ""):
+        opts["min_segment_days"] = min_seg
+    if gi_mean not in (None, "") or gi_sd not in (None, ""):
+        opts["gi_mean"], opts["gi_sd"] = gi_mean, gi_sd
+    if cps:
+        opts["changepoint_priors"] = [{"day": c["day"], "spread_days": c["spread_days"]} for c in cps]
+    for key in ("segments", "growth_rate_prior_pct_per_day", "chains", "draws"):
+        if opts[key] in (None, ""):
+            raise InputError("this value is empty; enter a number", column=key)
+    return opts
+
+
+def fit(n_clicks, series_key, cps, segments, family, weekday, jumps, growth, min_seg, drop_last,
+        gi_mean, gi_sd, horizon, chains, draws, seed):
+    """Submit a run; returns (url search, error message)."""
+    if not n_clicks:
+        return no_update, no_update
+    svc = services()
+    series, _ = get_series(svc.store, series_key)
+    if series is None:
+        return no_update, "Load a series first."
+    user, _ = current_user()
+    try:
+        opts = options_from_controls(series, cps or [], segments, family, weekday, jumps, growth, min_seg,
+                                     drop_last, gi_mean, gi_sd, horizon, chains, draws, seed)
+        rec = svc.runs.submit(series, opts, owner=user)
+    except InputError as exc:
+        label = LABELS.get(exc.column, exc.column)
+        return no_update, f"{label}: {exc.detail}" if label else str(exc)
+    except QueueUnavailable as exc:
+        return no_update, f"The fit queue is unavailable ({exc}); nothing was lost, try again shortly."
+    except PermissionError as exc:
+        return no_update, str(exc)
+    return f"?run={rec['id']}", ""
+
+
+def stop(n_clicks, run_id):
+    if not n_clicks or not run_id:
+        return no_update
+    user, admin = current_user()
+    try:
+        services().runs.stop(run_id, user=user, admin=admin)
+    except PermissionError as exc:
+        return str(exc)
+    except KeyError:
+        return "That run no longer exists."
+    return ""
+
+
+STATUS_WORDS = {
+    "queued": "waiting in the queue", "running": "running", "converged": "converged",
+    "unconverged": "finished, not converged", "stopped": "stopped", "failed": "failed",
+}
+
+
+def run_rows(_clicks, n_intervals, _run_id):
+    """Rows of the run list, newest first (refreshed every few polls while a run streams)."""
+    if ctx.triggered_id == ids.POLL and (n_intervals or 0) % 5:
+        return no_update
+    rows = []
+    for rec in services().runs.list(limit=100):
+        rows.append({
+            "id": rec["id"],
+            "when": rec.get("created_at", "")[5:16].replace("T", " "),
+            "series": rec.get("series_name", ""),
+            "K": rec.get("segments"),
+            "status": STATUS_WORDS.get(rec["status"], rec["status"]),
+            "owner": rec.get("owner", ""),
+        })
+    return rows
+
+
+def register(app):
+    controls = [State(ids.SERIES_KEY, "data"), State(ids.CHANGEPOINTS, "data"), State(ids.SEGMENTS, "value"),
+                State(ids.FAMILY, "value"), State(ids.WEEKDAY, "value"), State(ids.JUMPS, "value"),
+                State(ids.GROWTH_PRIOR, "value"), State(ids.MIN_SEGMENT, "value"), State(ids.DROP_LAST, "value"),
+                State(ids.GI_MEAN, "value"), State(ids.GI_SD, "value"), State(ids.HORIZON, "value"),
+                State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value")]
+    app.callback(
+        Output(ids.URL, "search", allow_duplicate=True),
+        Output(ids.FIT_ERROR, "children"),
+        Input(ids.FIT, "n_clicks"),
+        *controls,
+        prevent_initial_call=True,
+    )(fit)
+    app.callback(
+        Output(ids.FIT_ERROR, "children", allow_duplicate=True),
+        Input(ids.STOP, "n_clicks"),
+        State(ids.RUN_ID, "data"),
+        prevent_initial_call=True,
+    )(stop)
+    app.callback(
+        Output(ids.RUN_LIST, "data"),
+        Input(ids.REFRESH_RUNS, "n_clicks"),
+        Input(ids.POLL, "n_intervals"),
+        Input(ids.RUN_ID, "data"),
+    )(run_rows)

@@ -1,0 +1,68 @@
+"""Every component id of the dashboard, in one place."""
+
+# state kept in the browser
+SERIES_KEY = "series-key"  # upload key of the loaded series (the series itself stays on the server)
+CHANGEPOINTS = "changepoints"  # [{"day": float, "spread_days": float}], date order
+RUN_ID = "run-id"  # the run the panels show
+FIGURE_RUN = "figure-run"  # {"run": id, "iteration": n} drawn so far
+HIGHLIGHT = "highlight-segment"
+URL = "url"
+POLL = "poll"
+
+# data
+UPLOAD = "upload"
+SAMPLE = "sample-picker"
+REGION = "region-picker"
+REGION_ROW = "region-row"
+SERIES_INFO = "series-info"
+DATA_NOTES = "data-notes"
+DATA_ERROR = "data-error"
+
+# change dates
+ADD_CHANGE = "add-change-date"
+CHANGE_LIST = "change-date-list"
+CHANGE_SPREAD = "change-spread"  # pattern-matching: {"type": CHANGE_SPREAD, "index": i}
+CHANGE_REMOVE = "change-remove"  # pattern-matching
+SEGMENTS = "segments"
+SEGMENTS_NOTE = "segments-note"
+
+# model and priors
+FAMILY = "family"
+WEEKDAY = "weekday"
+JUMPS = "jumps"
+GROWTH_PRIOR = "growth-prior"
+GROWTH_PRIOR_NOTE = "growth-prior-note"
+MIN_SEGMENT = "min-segment"
+DROP_LAST = "drop-last"
+GI_MEAN = "gi-mean"
+GI_SD = "gi-sd"
+HORIZON = "horizon"
+CHAINS = "chains"
+DRAWS = "draws"
+SEED = "seed"
+
+# running
+FIT = "fit-button"
+STOP = "stop-button"
+PROGRESS = "progress"
+FIT_ERROR = "fit-error"
+RUN_LIST = "run-list"
+REFRESH_RUNS = "refresh-runs"
+BRIEF_LINK = "brief-link"
+
+# display
+STYLE = "display-style"
+SCALE = "display-scale"
+
+# panels
+HEADLINE = "headline"
+STATUS_BANNER = "status-banner"
+MAIN = "main-chart"
+CHANGE_HIST = "change-date-chart"
+RATES = "rates-chart"
+DIAG_SUMMARY = "diagnostics-summary"
+DIAG_TABLE = "diagnostics-table"
+TRACE = "trace-chart"
+TRACE_PARAM = "trace-parameter"
+WEEKDAY_FIG = "weekday-chart"
+RESIDUALS = "residual-chart"

@@ -1,0 +1,226 @@
+"""The dashboard's layout: pure functions returning Dash components."""
+
+from __future__ import annotations
+
+from dash import dash_table, dcc, html
+
+from inference.result import CAUTIONS
+
+from . import ids
+from .figures import empty_figure
+
+GRAPH_CONFIG = {
+    "displaylogo": False,
+    "edits": {"shapePosition": True},
+    "modeBarButtonsToRemove": ["select2d", "lasso2d", "autoScale2d"],
+    "toImageButtonOptions": {"format": "png", "scale": 2},
+}
+PLAIN_CONFIG = {"displaylogo": False, "modeBarButtonsToRemove": ["select2d", "lasso2d"]}
+
+
+def _field(label, component, hint=None, id_=None):
+    children = [html.Label(label, className="field-label"), component]
+    if id_:
+        children.append(html.Div(hint or "", className="field-hint", id=id_))
+    elif hint:
+        children.append(html.Div(hint, className="field-hint"))
+    return html.Div(children, className="field")
+
+
+def _number(id_, value, *, min_=None, max_=None, step=None, width="6em"):
+    return dcc.Input(id=id_, type="number", value=value, min=min_, max=max_, step=step,
+                     debounce=True, style={"width": width}, className="num")
+
+
+def data_section(samples):
+    return html.Details(open=True, className="section", children=[
+        html.Summary("1. Data"),
+        dcc.Upload(
+            id=ids.UPLOAD,
+            children=html.Div(["Drop a CSV file here, or ", html.Span("choose a file", className="link")]),
+            className="upload", multiple=False, max_size=20 * 1024 * 1024,
+            accept=".csv,.tsv,.txt,text/csv,text/plain",
+        ),
+        _field("or open a sample series (invented data)", dcc.Dropdown(
+            id=ids.SAMPLE, options=[{"label": label, "value": name} for name, label in samples],
+            placeholder="choose a sample", clearable=False)),
+        html.Div(id=ids.REGION_ROW, style={"display": "none"}, children=[
+            _field("Region", dcc.Dropdown(id=ids.REGION, clearable=False)),
+        ]),
+        html.Div(id=ids.DATA_ERROR, className="error", role="alert"),
+        html.Div(id=ids.SERIES_INFO, className="series-info"),
+        html.Div(id=ids.DATA_NOTES, className="notes"),
+    ])
+
+
+def changepoint_section():
+    return html.Details(open=True, className="section", children=[
+        html.Summary("2. Tentative change dates"),
+        html.P("Click the chart to add a change date, or use the button; drag a line to move it. "
+               "Each line centres the prior on that change date; its spread is the prior's "
+               "standard deviation in days.", className="help"),
+        html.Button("Add change date", id=ids.ADD_CHANGE, className="btn"),
+        html.Div(id=ids.CHANGE_LIST, className="change-list"),
+        _field("Segments", _number(ids.SEGMENTS, 3, min_=1, max_=12, step=1),
+               hint="", id_=ids.SEGMENTS_NOTE),
+    ])
+
+
+def model_section():
+    return html.Details(open=True, className="section", children=[
+        html.Summary("3. Model and priors"),
+        _field("Observation model", dcc.RadioItems(
+            id=ids.FAMILY, value="negbin", className="radio",
+            options=[{"label": " Negative binomial (overdispersed counts)", "value": "negbin"},
+                     {"label": " Poisson", "value": "poisson"}])),
+        dcc.Checklist(id=ids.WEEKDAY, value=["on"], className="check",
+                      options=[{"label": " Day-of-week reporting effect (daily series)", "value": "on"}]),
+        dcc.Checklist(id=ids.JUMPS, value=[], className="check",
+                      options=[{"label": " Allow a jump in level at each change date", "value": "on"}]),
+        _field("Growth rates rarely exceed (% per day)", _number(ids.GROWTH_PRIOR, 20, min_=0.5, max_=200, step=0.5),
+               hint="", id_=ids.GROWTH_PRIOR_NOTE),
+        _field("Minimum segment length (days)", _number(ids.MIN_SEGMENT, None, min_=2, max_=3650, step=1),
+               hint="blank: 14 days for daily series, 28 for weekly"),
+        _field("Leave out the last values as incomplete (intervals)", _number(ids.DROP_LAST, 0, min_=0, max_=60, step=1)),
+        html.Div(className="pair", children=[
+            _field("Generation interval mean (days)", _number(ids.GI_MEAN, None, min_=0.1, max_=60, step=0.1)),
+            _field("sd (days)", _number(ids.GI_SD, None, min_=0, max_=60, step=0.1)),
+        ]),
+        html.Div("Reproduction numbers need a generation interval; they depend on the interval assumed.",
+                 className="field-hint"),
+        _field("Projection horizon (intervals)", _number(ids.HORIZON, 14, min_=0, max_=120, step=1)),
+        html.Div(className="pair", children=[
+            _field("Chains", _number(ids.CHAINS, 8, min_=2, max_=64, step=1, width="4.5em")),
+            _field("Draws per chain (at least)", _number(ids.DRAWS, 250, min_=50, max_=100000, step=50)),
+            _field("Seed", _number(ids.SEED, 1, min_=0, step=1, width="5em")),
+        ]),
+    ])
+
+
+def run_section():
+    return html.Div(className="section run-section", children=[
+        html.Div(className="buttons", children=[
+            html.Button("Fit", id=ids.FIT, className="btn primary", n_clicks=0),
+            html.Button("Stop", id=ids.STOP, className="btn", n_clicks=0, disabled=True),
+            html.A("Briefing view", id=ids.BRIEF_LINK, className="btn link-btn disabled", href="#",
+                   target="_blank"),
+        ]),
+        html.Div(id=ids.FIT_ERROR, className="error", role="alert"),
+        html.Div(id=ids.PROGRESS, className="progress", **{"aria-live": "polite"}),
+        html.Details(open=True, className="section", children=[
+            html.Summary("Runs"),
+            html.Button("Refresh", id=ids.REFRESH_RUNS, className="btn small", n_clicks=0),
+            dash_table.DataTable(
+                id=ids.RUN_LIST,
+                columns=[{"name": c, "id": k} for k, c in (
+                    ("when", "Started"), ("series", "Series"), ("K", "K"), ("status", "Status"))],
+                data=[], row_selectable=False, cell_selectable=True, page_size=8,
+                style_as_list_view=True,
+                style_cell={"fontSize": "13px", "padding": "3px", "textAlign": "left", "cursor": "pointer",
+                            "maxWidth": "120px", "overflow": "hidden", "textOverflow": "ellipsis"},
+                style_header={"fontWeight": "600"},
+                tooltip_duration=None,
+            ),
+        ]),
+    ])
+
+
+def results_area():
+    return html.Div(className="results", children=[
+        html.Div(id=ids.STATUS_BANNER, className="banner"),
+        html.Div(id=ids.HEADLINE, className="headline"),
+        html.Div(className="toolbar", children=[
+            dcc.RadioItems(id=ids.STYLE, value="bars", inline=True, className="radio",
+                           options=[{"label": " Bars", "value": "bars"}, {"label": " Points", "value": "points"}]),
+            dcc.RadioItems(id=ids.SCALE, value="linear", inline=True, className="radio",
+                           options=[{"label": " Linear", "value": "linear"}, {"label": " Log", "value": "log"}]),
+        ]),
+        dcc.Graph(id=ids.MAIN, figure=empty_figure("Load a series to begin."), config=GRAPH_CONFIG,
+                  className="graph main-graph"),
+        dcc.Graph(id=ids.CHANGE_HIST, figure=empty_figure("Change-date distributions appear while the fit runs."),
+                  config=PLAIN_CONFIG, className="graph hist-graph"),
+        html.Div(className="row", children=[
+            html.Div(className="col", children=[
+                html.H3("Growth rate by segment"),
+                dcc.Graph(id=ids.RATES, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG, className="graph"),
+            ]),
+            html.Div(className="col", children=[
+                html.H3("Convergence"),
+                html.Div(id=ids.DIAG_SUMMARY, className="diag-summary"),
+                dash_table.DataTable(
+                    id=ids.DIAG_TABLE,
+                    columns=[{"name": "Quantity", "id": "parameter"}, {"name": "R-hat", "id": "rhat"},
+                             {"name": "Bulk ESS", "id": "ess_bulk"}, {"name": "Tail ESS", "id": "ess_tail"},
+                             {"name": "Status", "id": "status"}],
+                    data=[], page_size=12, style_as_list_view=True,
+                    style_cell={"fontSize": "13px", "padding": "3px 6px", "textAlign": "left"},
+                    style_header={"fontWeight": "600"},
+                    style_data_conditional=[
+                        {"if": {"filter_query": '{status} != "ok"'}, "color": "#A33A00", "fontWeight": "600"},
+                    ],
+                ),
+            ]),
+        ]),
+        html.Div(className="row", children=[
+            html.Div(className="col", children=[
+                html.H3("Traces"),
+                dcc.Dropdown(id=ids.TRACE_PARAM, clearable=False, placeholder="quantity"),
+                dcc.Graph(id=ids.TRACE, figure=empty_figure("Traces appear once sampling starts."),
+                          config=PLAIN_CONFIG, className="graph"),
+            ]),
+            html.Div(className="col", children=[
+                html.H3("Day-of-week effect"),
+                dcc.Graph(id=ids.WEEKDAY_FIG, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG,
+                          className="graph"),
+            ]),
+        ]),
+        html.Div(className="row", children=[
+            html.Div(className="col wide", children=[
+                html.H3("Model check: posterior predictive residuals"),
+                dcc.Graph(id=ids.RESIDUALS, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG,
+                          className="graph"),
+            ]),
+        ]),
+        html.Footer(className="cautions", children=[html.P(c) for c in CAUTIONS]),
+    ])
+
+
+def page(samples, series_key=None, team_user=None):
+    """The whole page.
+
+    Parameters
+    ----------
+    samples : list of (name, label)
+    series_key : str, optional
+        Upload key of a series to show at once (``serve --demo``).
+    team_user : str, optional
+        Signed-in user in team mode (shown with a sign-out link).
+    """
+    header_right = []
+    if team_user:
+        header_right = [html.Span(f"Signed in as {team_user}", className="user"),
+                        html.A("Sign out", href="/logout", className="link")]
+    return html.Div(className="page", children=[
+        dcc.Location(id=ids.URL, refresh=False),
+        dcc.Store(id=ids.SERIES_KEY, data=series_key),
+        dcc.Store(id=ids.CHANGEPOINTS, data=[]),
+        dcc.Store(id=ids.RUN_ID, data=None),
+        dcc.Store(id=ids.FIGURE_RUN, data=None),
+        dcc.Store(id=ids.HIGHLIGHT, data=None),
+        dcc.Interval(id=ids.POLL, interval=400, disabled=True),
+        html.Header(className="header", children=[
+            html.Div(className="brand", children=[html.Span("Bendline", className="logo"),
+                                                  html.Span("growth, decline and change dates in count series",
+                                                            className="tagline")]),
+            html.Div(className="header-right", children=header_right),
+        ]),
+        html.Div(className="caution-strip", children=(
+            "Estimates depend on the model's assumptions and the data's quality. They are no substitute "
+            "for epidemiological judgement: defer to your agency's methods and qualified epidemiologists.")),
+        html.Main(className="body", children=[
+            html.Aside(className="controls", children=[
+                data_section(samples), changepoint_section(), model_section(), run_section(),
+            ]),
+            results_area(),
+        ]),
+    ])

@@ -1,0 +1,526 @@
+"""Figure builders of the dashboard (app/web/figures.py): structure, texts, updates.
+
+The example snapshots in tests/app/data/ are engine snapshots of one run of
+the invented daily admissions sample (init, warm-up, sampling, done) and of
+the weekly sample (done), stored compactly.
+"""
+
+from __future__ import annotations
+
+import copy
+import json
+import math
+import os
+
+import plotly.graph_objects as go
+import pytest
+
+from app.web import figures as F
+from app.web import theme
+
+DATA = os.path.join(os.path.dirname(os.path.abspath(__file__)), "data")
+DAILY_PHASES = ("snapshot_00_init", "snapshot_02_warmup", "snapshot_04_sampling", "snapshot_06_done")
+ALL_SNAPSHOTS = DAILY_PHASES + ("snapshot_weekly_done",)
+TENTATIVE = [{"day": 70.0, "spread_days": 7.0}, {"day": 170.5, "spread_days": 10.0}]
+
+
+def _load(name):
+    with open(os.path.join(DATA, name + ".json")) as fh:
+        return json.load(fh)
+
+
+@pytest.fixture(scope="module")
+def daily():
+    return _load("series")
+
+
+@pytest.fixture(scope="module")
+def weekly():
+    return _load("series_weekly")
+
+
+@pytest.fixture(scope="module")
+def snaps():
+    return {name: _load(name) for name in ALL_SNAPSHOTS}
+
+
+def _series_for(name, daily, weekly):
+    return weekly if "weekly" in name else daily
+
+
+def _as_json(fig):
+    return json.loads(fig.to_json() if hasattr(fig, "to_json") else json.dumps(fig))
+
+
+def _unconverged(done):
+    snap = copy.deepcopy(done)
+    snap["diagnostics"]["converged"] = False
+    snap["diagnostics"]["rhat_max"] = 1.04
+    snap["diagnostics"]["parameters"][0]["rhat"] = 1.04
+    snap["status"] = "unconverged"
+    return snap
+
+
+# --------------------------------------------------------------- every figure
+
+@pytest.mark.parametrize("name", ALL_SNAPSHOTS)
+def test_every_figure_builds_and_is_json_safe(name, snaps, daily, weekly):
+    snap = snaps[name]
+    series = _series_for(name, daily, weekly)
+    figs = [
+        F.main_figure(series, snap, TENTATIVE),
+        F.main_figure(series, snap, TENTATIVE, log_y=True, style="points", highlight_segment=2,
+                      x_range=["2026-02-01", "2026-05-01"]),
+        F.changepoint_figure(series, snap),
+        F.changepoint_figure(series, snap, highlight_segment=1, x_range=["2026-02-01", "2026-05-01"]),
+        F.rates_figure(snap),
+        F.rates_figure(snap, highlight_segment=1),
+        F.trace_figure(snap, "growth rate 1 (per day)"),
+        F.trace_figure(snap, "no such quantity"),
+        F.weekday_figure(snap),
+        F.residual_figure(snap),
+        F.empty_figure("No fit yet."),
+    ]
+    for fig in figs:
+        assert isinstance(fig, go.Figure)
+        text = fig.to_json()
+        assert "NaN" not in text and "Infinity" not in text
+        json.loads(text)
+    json.dumps(F.diagnostics_rows(snap))
+    assert isinstance(F.diagnostics_summary(snap), str)
+    for updates in (F.main_updates(series, snap, TENTATIVE, highlight_segment=2),
+                    F.changepoint_updates(series, snap), F.trace_updates(snap, "growth rate 1 (per day)"),
+                    F.residual_updates(snap)):
+        json.dumps(updates)
+
+
+def test_figures_without_a_snapshot(daily):
+    assert len(F.main_figure(daily).data) == len(F.MAIN_TRACES)
+    for fig in (F.changepoint_figure(daily, None), F.rates_figure(None), F.trace_figure(None, "x"),
+                F.weekday_figure(None), F.residual_figure(None)):
+        assert len(fig.data) == 0
+        assert fig.layout.annotations[0].text
+    assert F.diagnostics_rows(None) == []
+    assert F.diagnostics_summary(None) == "No fit yet."
+
+
+# ---------------------------------------------------------------- main figure
+
+def _trace_signature(fig):
+    return [(t.type, t.name, t.yaxis) for t in fig.data]
+
+
+def test_main_trace_order_and_count_do_not_depend_on_the_snapshot(snaps, daily, weekly):
+    for style in ("bars", "points"):
+        sigs = {name: _trace_signature(F.main_figure(daily, snaps[name], TENTATIVE, style=style))
+                for name in DAILY_PHASES}
+        sigs["none"] = _trace_signature(F.main_figure(daily, None, TENTATIVE, style=style))
+        first = next(iter(sigs.values()))
+        assert len(first) == len(F.MAIN_TRACES) == 14
+        assert all(sig == first for sig in sigs.values())
+    weekly_sig = _trace_signature(F.main_figure(weekly, snaps["snapshot_weekly_done"]))
+    assert len(weekly_sig) == len(F.MAIN_TRACES)
+    assert [t[0] for t in weekly_sig] == [t[0] for t in _trace_signature(F.main_figure(daily, None))]
+
+
+def test_main_trace_roles(snaps, daily):
+    fig = F.main_figure(daily, snaps["snapshot_06_done"])
+    idx = F.MAIN_TRACE_INDEX
+    band = snaps["snapshot_06_done"]["band"]
+    assert fig.data[idx["counts"]].type == "bar"
+    assert list(fig.data[idx["counts"]].y) == daily["values"]
+    assert fig.data[idx["average_7day"]].name == "7-day centred average"
+    assert list(fig.data[idx["trend_median"]].y) == band["trend_q50"]
+    assert list(fig.data[idx["trend_low"]].y) == band["trend_q05"]
+    assert list(fig.data[idx["trend_high"]].y) == band["trend_q95"]
+    assert fig.data[idx["trend_high"]].fill == "tonexty"
+    assert list(fig.data[idx["predictive_high"]].y) == band["predictive_q95"]
+    assert fig.data[idx["predictive_high"]].name == "90% predictive interval: where counts should fall"
+    proj = snaps["snapshot_06_done"]["projection"]
+    median = fig.data[idx["projection_median"]]
+    assert median.line.dash == "dash"
+    assert "if the current trend continues" in median.name
+    assert list(median.y)[1:] == proj["trend_q50"]  # joined to the last fitted value
+    assert list(median.y)[0] == band["trend_q50"][-1]
+    assert not any("forecast" in (t.name or "").lower() for t in fig.data)
+    medians = fig.data[idx["change_date_medians"]]
+    assert medians.yaxis == "y2"
+    assert list(medians.x) == [F.day_to_x(daily, cp["median_day"]) for cp in snaps["snapshot_06_done"]["changepoints"]]
+    intervals = fig.data[idx["change_date_intervals"]]
+    cp1 = snaps["snapshot_06_done"]["changepoints"][0]
+    assert list(intervals.x)[:3] == [F.day_to_x(daily, cp1["q05_day"]), F.day_to_x(daily, cp1["q95_day"]), None]
+    points = F.main_figure(daily, snaps["snapshot_06_done"], style="points")
+    assert points.data[idx["counts"]].type == "scatter" and points.data[idx["counts"]].mode == "markers"
+    with pytest.raises(ValueError):
+        F.main_figure(daily, None, style="lines")
+
+
+def test_counts_sit_at_interval_midpoints_with_full_width(daily, weekly):
+    d = F.main_figure(daily).data[F.MAIN_TRACE_INDEX["counts"]]
+    assert d.x[0] == "2026-01-05 12:00:00" and d.width == F.MS_PER_DAY
+    w = F.main_figure(weekly).data[F.MAIN_TRACE_INDEX["counts"]]
+    assert w.x[0] == "2024-01-04 12:00:00" and w.width == 7 * F.MS_PER_DAY
+    # weekly series: no 7-day average (empty trace kept for a stable order)
+    avg = F.main_figure(weekly).data[F.MAIN_TRACE_INDEX["average_7day"]]
+    assert list(avg.x) == [] and list(avg.y) == []
+
+
+@pytest.mark.parametrize("old,new", [
+    ("snapshot_00_init", "snapshot_02_warmup"),
+    ("snapshot_02_warmup", "snapshot_04_sampling"),
+    ("snapshot_04_sampling", "snapshot_06_done"),
+    ("snapshot_06_done", "snapshot_00_init"),
+    (None, "snapshot_06_done"),
+])
+@pytest.mark.parametrize("highlight", [None, 2])
+def test_main_updates_reproduce_a_rebuild(old, new, highlight, snaps, daily):
+    a = snaps[old] if old else None
+    b = snaps[new]
+    before = _as_json(F.main_figure(daily, a, TENTATIVE, highlight_segment=highlight))
+    after = _as_json(F.main_figure(daily, b, TENTATIVE, highlight_segment=highlight))
+    updates = F.main_updates(daily, b, TENTATIVE, highlight_segment=highlight)
+    patched = _as_json(F.apply_updates(before, json.loads(json.dumps(updates))))
+    assert patched["data"] == after["data"]
+    assert patched["layout"]["annotations"] == after["layout"]["annotations"]
+    assert patched["layout"]["shapes"] == after["layout"]["shapes"]
+    assert patched == after  # nothing else differs either
+    assert set(int(i) for i in updates["traces"]) == set(F.MAIN_SNAPSHOT_TRACES)
+
+
+def test_main_updates_weekly(snaps, weekly):
+    before = _as_json(F.main_figure(weekly, None))
+    after = _as_json(F.main_figure(weekly, snaps["snapshot_weekly_done"]))
+    assert _as_json(F.apply_updates(before, F.main_updates(weekly, snaps["snapshot_weekly_done"]))) == after
+
+
+def test_apply_updates_refuses_a_figure_of_another_structure(snaps, daily):
+    fig = F.empty_figure("waiting")
+    with pytest.raises(ValueError):
+        F.apply_updates(fig, F.main_updates(daily, snaps["snapshot_06_done"]))
+
+
+def test_tentative_change_dates_are_the_first_shapes_in_order(snaps, daily):
+    cps = [{"day": 120.25, "spread_days": 5.0}, {"day": 40.0, "spread_days": 3.0}, {"day": 200.0, "spread_days": 0}]
+    fig = F.main_figure(daily, snaps["snapshot_06_done"], cps, highlight_segment=3)
+    shapes = fig.layout.shapes
+    k = len(cps)
+    assert len(shapes) == 2 * k + 1
+    for i, cp in enumerate(cps):
+        line = shapes[i]
+        assert line.type == "line" and line.editable is True
+        assert line.xref == "x" and line.yref == "paper"
+        assert line.x0 == line.x1 == F.day_to_x(daily, cp["day"])
+        assert F.x_to_day(daily, line.x0) == pytest.approx(cp["day"], abs=1e-4)
+    assert shapes[0].x0 == "2026-05-05 06:00:00"  # 120.25 days after 5 Jan 2026
+    assert shapes[1].x0 == "2026-02-14"
+    for i, cp in enumerate(cps):
+        rect = shapes[k + i]
+        assert rect.type == "rect" and not rect.editable
+        assert rect.x0 == F.day_to_x(daily, cp["day"] - cp["spread_days"])
+        assert rect.x1 == F.day_to_x(daily, cp["day"] + cp["spread_days"])
+    seg3 = snaps["snapshot_06_done"]["segments"][2]
+    highlight = shapes[2 * k]
+    assert highlight.type == "rect" and not highlight.editable and highlight.visible is not False
+    assert highlight.x0 == F.day_to_x(daily, seg3["start_day"])
+    assert highlight.x1 == F.day_to_x(daily, seg3["end_day"])
+    # no editable shape other than the analyst's lines
+    assert [bool(s.editable) for s in shapes] == [True] * k + [False] * (k + 1)
+
+
+def test_x_to_day_reads_what_plotly_reports(daily):
+    assert F.x_to_day(daily, "2026-01-05") == 0
+    assert F.x_to_day(daily, "2026-03-18 20:40:12.3456") == pytest.approx(72 + (20 * 3600 + 40 * 60 + 12.3456) / 86400)
+    assert F.x_to_day(daily, "2026-01-06T12:00:00") == pytest.approx(1.5)
+
+
+def test_highlight_hidden_without_segments(snaps, daily):
+    fig = F.main_figure(daily, snaps["snapshot_00_init"], TENTATIVE, highlight_segment=2)
+    assert fig.layout.shapes[4].visible is False
+
+
+def _status(fig):
+    ann = fig.layout.annotations[F.MAIN_STATUS_ANNOTATION]
+    return ann.text if ann.visible is not False else ""
+
+
+def test_provisional_note_until_final_and_converged(snaps, daily):
+    for name in ("snapshot_00_init", "snapshot_02_warmup", "snapshot_04_sampling"):
+        assert _status(F.main_figure(daily, snaps[name])) == "Provisional: sampling in progress, not yet converged"
+    done = snaps["snapshot_06_done"]
+    assert _status(F.main_figure(daily, done)) == ""
+    assert all("Provisional" not in (a.text or "") or a.visible is False for a in F.main_figure(daily, done).layout.annotations)
+    assert _status(F.main_figure(daily, _unconverged(done))) == "Not converged: do not report"
+    assert F.main_updates(daily, done)["annotations"][0]["visible"] is False
+    assert F.main_updates(daily, snaps["snapshot_04_sampling"])["annotations"][0]["visible"] is True
+
+
+def test_log_axis(daily, snaps):
+    lin = F.main_figure(daily, snaps["snapshot_06_done"])
+    log = F.main_figure(daily, snaps["snapshot_06_done"], log_y=True)
+    assert lin.layout.yaxis.type == "linear"
+    assert log.layout.yaxis.type == "log"
+    assert "log" in log.layout.yaxis.title.text
+    assert "per day" in lin.layout.yaxis.title.text
+    assert lin.layout.uirevision == log.layout.uirevision  # x zoom survives the switch
+    assert lin.layout.yaxis.uirevision != log.layout.yaxis.uirevision
+
+
+def test_x_range_and_uirevision(daily, snaps):
+    fig = F.main_figure(daily, snaps["snapshot_06_done"], x_range=["2026-03-01", "2026-04-01"])
+    assert list(fig.layout.xaxis.range) == ["2026-03-01", "2026-04-01"]
+    assert fig.layout.xaxis.type == "date"
+    assert F.main_figure(daily, None).layout.uirevision == F.main_figure(daily, snaps["snapshot_04_sampling"]).layout.uirevision
+
+
+# -------------------------------------------------------------- 7-day average
+
+def test_centred_average_needs_four_of_seven_days():
+    values = [1, 2, 3, 4, 5, 6, 7, 8, None, None, None, 12, 13, 14]
+    avg = F.centred_average_7day(values)
+    assert len(avg) == len(values)
+    # day 0: window days -3..3, only 0..3 exist (4 values) -> mean of 1..4
+    assert avg[0] == pytest.approx(2.5)
+    assert avg[3] == pytest.approx(4.0)  # full window 1..7, centred on 4
+    assert avg[4] == pytest.approx(5.0)  # 2..8
+    # day 7: window 4..10 holds 5,6,7,8 (4 present) -> 6.5
+    assert avg[7] == pytest.approx(6.5)
+    # day 8: window 5..11 holds 6,7,8,12 -> 8.25
+    assert avg[8] == pytest.approx(8.25)
+    # day 9: window 6..12 holds 7,8,12,13 (4 present)
+    assert avg[9] == pytest.approx(10.0)
+    # day 13 (last): window 10..16 holds 12,13,14 (3 present) -> missing
+    assert avg[13] is None
+    # day 12: window 9..15 holds 12, 13, 14 only -> missing
+    assert avg[12] is None
+
+
+def test_centred_average_is_on_the_main_chart():
+    series = {"start": "2026-01-01", "interval_days": 1, "name": "tiny",
+              "values": [10, None, None, None, 10, 20, 30, 40, float("nan"), 50]}
+    fig = F.main_figure(series)
+    avg = list(fig.data[F.MAIN_TRACE_INDEX["average_7day"]].y)
+    assert avg == F.centred_average_7day(series["values"])
+    assert avg[0] is None  # days 0..3 hold one value
+    assert avg[4] == pytest.approx((10 + 20 + 30 + 40) / 4)  # window 1..7 holds 10, 20, 30, 40
+    assert fig.data[F.MAIN_TRACE_INDEX["average_7day"]].x == fig.data[F.MAIN_TRACE_INDEX["counts"]].x
+    fig.to_json()
+
+
+# ----------------------------------------------------------------- rates
+
+def _segment(index, start, end, r, doubling=None, halving=None, prob=0.5, rep=None):
+    return {"index": index, "start_date": start, "end_date": end,
+            "growth_rate_per_day": {"mean": r[1], "median": r[1], "q05": r[0], "q95": r[2]},
+            "doubling_time_days": doubling, "halving_time_days": halving, "prob_growing": prob,
+            "reproduction_number": rep}
+
+
+def _rates_snapshot():
+    ln2 = math.log(2)
+    return {"phase": "done", "diagnostics": {"converged": True}, "segments": [
+        _segment(1, "2026-01-05", "2026-03-14", (ln2 / 17, ln2 / 12, ln2 / 9),
+                 doubling={"median": 12.0, "q05": 9.0, "q95": 17.0}, prob=1.0,
+                 rep={"median": 1.31, "q05": 1.22, "q95": 1.41, "prob_above_1": 1.0}),
+        _segment(2, "2026-03-14", "2026-05-02", (-ln2 / 20, -ln2 / 25, -ln2 / 31.4),
+                 halving={"median": 25.0, "q05": 20.0, "q95": 31.4}, prob=0.0),
+        _segment(3, "2026-05-02", "2026-06-30", (-0.01, 0.008, 0.027),
+                 doubling={"median": 86.6, "q05": 25.7, "q95": None}, prob=0.74),
+    ]}
+
+
+def test_rates_texts_growing_shrinking_straddling():
+    snap = _rates_snapshot()
+    grow, shrink, straddle = (F.growth_text(s) for s in snap["segments"])
+    assert grow == ("doubling every 12 days (9–17)", "P(growing) > 99% · R 1.31 (1.22–1.41)")
+    assert shrink == ("halving every 25 days (20–31)", "P(growing) < 1%")
+    assert straddle == ("doubling every 87 days (> 26, or no doubling)", "P(growing) 74%")
+    halving_unbounded = {"halving_time_days": {"median": 140.0, "q05": 40.0, "q95": None}, "prob_growing": 0.2}
+    assert F.growth_text(halving_unbounded)[0] == "halving every 140 days (> 40, or no halving)"
+    assert F.growth_text({"prob_growing": 0.5})[0] == "no clear doubling or halving"
+    assert F.growth_text({"doubling_time_days": {"median": 6.25, "q05": 5.5, "q95": 7.1}})[0] == \
+        "doubling every 6.2 days (5.5–7.1)"
+
+
+def test_rates_figure_rows(snaps):
+    snap = _rates_snapshot()
+    fig = F.rates_figure(snap, highlight_segment=2)
+    bars, medians = fig.data
+    assert [c[0] for c in bars.customdata] == [1, 2, 3]
+    assert [c[0] for c in medians.customdata] == [1, 2, 3]
+    labels = list(fig.layout.yaxis.ticktext)
+    assert labels[0] == "Segment 1: 5 Jan – 14 Mar"
+    assert labels[1] == "<b>Segment 2: 14 Mar – 2 May</b>"
+    assert labels[2] == "Segment 3: 2 May – 29 Jun"  # last segment: end_date is the day after the data
+    assert fig.layout.yaxis.autorange == "reversed"
+    # growth rates shown as % change per day, 100 (exp(r) - 1)
+    assert medians.x[0] == pytest.approx(100 * (math.exp(math.log(2) / 12) - 1))
+    assert bars.base[2] == pytest.approx(100 * (math.exp(-0.01) - 1))
+    assert bars.x[2] == pytest.approx(100 * (math.exp(0.027) - math.exp(-0.01)))
+    assert "% change per day" in fig.layout.xaxis.title.text
+    # symbols: above zero, below zero, straddling
+    assert list(medians.marker.symbol) == ["triangle-up", "triangle-down", "circle"]
+    texts = [a.text for a in fig.layout.annotations]
+    assert "doubling every 12 days (9–17)<br>P(growing) > 99% · R 1.31 (1.22–1.41)" in texts
+    assert "<b>halving every 25 days (20–31)</b><br>P(growing) < 1%" in texts
+    assert any(s.type == "line" and s.x0 == 0 for s in fig.layout.shapes)  # zero line
+    assert any(s.type == "rect" and s.y0 == 0.5 for s in fig.layout.shapes)  # highlighted row 2
+    weekly = F.rates_figure(snaps["snapshot_weekly_done"])
+    assert weekly.layout.yaxis.ticktext[2] == "Segment 3: 10 Dec 2024 – 20 Jun 2025"
+
+
+# ------------------------------------------------------------- change dates
+
+def test_changepoint_figure(snaps, daily, weekly):
+    snap = snaps["snapshot_06_done"]
+    fig = F.changepoint_figure(daily, snap, highlight_segment=2)
+    k = len(snap["changepoints"])
+    assert len(fig.data) == 2 * k
+    assert [t.name for t in fig.data[:k]] == [f"change date {j + 1}" for j in range(k)]
+    assert fig.layout.xaxis.type == "date"
+    assert fig.layout.yaxis.title.text == "Share of draws per day"
+    colours = {t.marker.color for t in fig.data[:k]}
+    assert len(colours) == k
+    assert sum(fig.data[0].y) == pytest.approx(1.0, abs=1e-3)
+    assert list(fig.data[k].x) == [F.day_to_x(daily, snap["changepoints"][0]["median_day"])] * 2
+    wk = F.changepoint_figure(weekly, snaps["snapshot_weekly_done"])
+    assert wk.layout.yaxis.title.text == "Share of draws per week"
+    assert len(F.changepoint_figure(daily, snaps["snapshot_00_init"]).data) == 0
+    one_segment = dict(snap, changepoints=[], changepoint_histograms={"edges_day": [0, 1], "counts": []})
+    assert "no change dates" in F.changepoint_figure(daily, one_segment).layout.annotations[0].text
+
+
+def test_changepoint_updates(snaps, daily):
+    a, b = snaps["snapshot_04_sampling"], snaps["snapshot_06_done"]
+    before = _as_json(F.changepoint_figure(daily, a))
+    after = _as_json(F.changepoint_figure(daily, b))
+    assert _as_json(F.apply_updates(before, F.changepoint_updates(daily, b))) == after
+    assert F.changepoint_updates(daily, snaps["snapshot_00_init"])["trace_count"] == 0
+
+
+# ------------------------------------------------------------------ traces
+
+def test_trace_figure(snaps):
+    snap = snaps["snapshot_06_done"]
+    fig = F.trace_figure(snap, "change date 1 (day)")
+    chains = len(snap["traces"]["values"][0])
+    assert len(fig.data) == chains == 8
+    assert list(fig.data[0].x) == snap["traces"]["iteration"]
+    assert list(fig.data[3].y) == snap["traces"]["values"][0][3]
+    assert [t.name for t in fig.data] == [f"chain {c + 1}" for c in range(8)]
+    # chains 1..7 in seven colours, chain 8 repeats chain 1's colour with a dash
+    assert len({t.line.color for t in fig.data[:7]}) == 7
+    assert fig.data[7].line.color == fig.data[0].line.color and fig.data[7].line.dash != fig.data[0].line.dash
+    assert "R-hat 1.003" in fig.layout.title.text
+    warm = F.trace_figure(snaps["snapshot_02_warmup"], "change date 1 (day)")
+    assert len(warm.data) == 0 and "warm-up" in warm.layout.annotations[0].text
+    before = _as_json(F.trace_figure(snaps["snapshot_04_sampling"], "log level 0"))
+    after = _as_json(F.trace_figure(snap, "log level 0"))
+    assert _as_json(F.apply_updates(before, F.trace_updates(snap, "log level 0"))) == after
+
+
+def test_sixteen_chains_cycle_colours_with_dashes():
+    values = [[[float(c)] * 3 for c in range(16)]]
+    snap = {"phase": "sampling", "traces": {"iteration": [0, 1, 2], "names": ["q"], "values": values}}
+    fig = F.trace_figure(snap, "q")
+    n = len(theme.CHAIN_COLOURS)
+    assert len(fig.data) == 16
+    styles = {(t.line.color, t.line.dash) for t in fig.data}
+    assert len(styles) == 16
+    assert fig.data[n].line.color == fig.data[0].line.color
+
+
+# ------------------------------------------------------------- diagnostics
+
+def test_diagnostics_rows_flags(snaps):
+    rows = F.diagnostics_rows(snaps["snapshot_06_done"])
+    assert rows and all(r["status"] == "ok" for r in rows)
+    assert set(rows[0]) == {"parameter", "rhat", "ess_bulk", "ess_tail", "status"}
+    snap = {"diagnostics": {"criterion": "max R-hat < 1.01 and min bulk and tail ESS >= 400", "parameters": [
+        {"name": "a", "rhat": 1.002, "ess_bulk": 900.4, "ess_tail": 800.0},
+        {"name": "b", "rhat": 1.01, "ess_bulk": 900.0, "ess_tail": 800.0},
+        {"name": "c", "rhat": 1.003, "ess_bulk": 399.0, "ess_tail": 800.0},
+        {"name": "d", "rhat": 1.003, "ess_bulk": 900.0, "ess_tail": 120.0},
+        {"name": "e", "rhat": 1.2, "ess_bulk": 50.0, "ess_tail": 40.0},
+        {"name": "f", "rhat": None, "ess_bulk": None, "ess_tail": None},
+    ]}}
+    by_name = {r["parameter"]: r for r in F.diagnostics_rows(snap)}
+    assert by_name["a"] == {"parameter": "a", "rhat": 1.002, "ess_bulk": 900, "ess_tail": 800, "status": "ok"}
+    assert by_name["b"]["status"] == "chains disagree (R-hat ≥ 1.01)"
+    assert by_name["c"]["status"] == "too few effective draws (ESS < 400)"
+    assert by_name["d"]["status"] == "too few effective draws (ESS < 400)"
+    assert by_name["e"]["status"] == "chains disagree (R-hat ≥ 1.01); too few effective draws (ESS < 400)"
+    assert by_name["f"]["status"] == "not available"
+    assert F.diagnostics_rows(snaps["snapshot_02_warmup"]) == []
+    flagged = F.diagnostics_rows(snaps["snapshot_04_sampling"])
+    assert any(r["status"] != "ok" for r in flagged)
+
+
+def test_diagnostics_summary(snaps):
+    done = F.diagnostics_summary(snaps["snapshot_06_done"])
+    assert done.startswith("Converged: max R-hat 1.007, min ESS 1,410 (criterion: max R-hat < 1.01")
+    sampling = F.diagnostics_summary(snaps["snapshot_04_sampling"])
+    assert sampling.startswith("Not yet converged: max R-hat 1.061") and "still sampling" in sampling
+    assert F.diagnostics_summary(snaps["snapshot_02_warmup"]).startswith("Not yet converged: warm-up")
+    assert F.diagnostics_summary(snaps["snapshot_00_init"]).startswith("Not yet converged")
+    bad = F.diagnostics_summary(_unconverged(snaps["snapshot_06_done"]))
+    assert bad.startswith("Not converged:") and bad.endswith("Do not report.")
+
+
+# ----------------------------------------------------------------- weekday
+
+def test_weekday_figure(snaps):
+    snap = snaps["snapshot_06_done"]
+    fig = F.weekday_figure(snap)
+    assert len(fig.data) == 1
+    t = fig.data[0]
+    assert list(t.x) == ["Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun"]
+    assert list(t.y) == [d["median"] for d in snap["weekday"]]
+    assert t.error_y.array[1] == pytest.approx(snap["weekday"][1]["q95"] - snap["weekday"][1]["median"])
+    assert t.error_y.arrayminus[1] == pytest.approx(snap["weekday"][1]["median"] - snap["weekday"][1]["q05"])
+    assert any(s.y0 == 1 and s.y1 == 1 for s in fig.layout.shapes)
+    assert any(a.text == "no weekday effect" for a in fig.layout.annotations)
+
+
+def test_weekday_empty_state(snaps):
+    fig = F.weekday_figure(snaps["snapshot_weekly_done"])
+    assert len(fig.data) == 0
+    assert fig.layout.annotations[0].text == "Weekday effect not fitted (weekly series or switched off)"
+    off = dict(snaps["snapshot_06_done"], weekday=None)
+    assert F.weekday_figure(off).layout.annotations[0].text.startswith("Weekday effect not fitted")
+    assert "appear" in F.weekday_figure(snaps["snapshot_00_init"]).layout.annotations[0].text
+
+
+# --------------------------------------------------------------- residuals
+
+def test_residual_figure(snaps):
+    snap = snaps["snapshot_06_done"]
+    fig = F.residual_figure(snap)
+    assert len(fig.data) == 2
+    assert fig.data[0].mode == "markers"
+    assert list(fig.data[0].y) == snap["checks"]["pearson"]
+    assert fig.data[1].type == "bar" and list(fig.data[1].x) == ["Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun"]
+    assert fig.layout.title.text == "90% predictive intervals cover 91% of values"
+    weekly = F.residual_figure(snaps["snapshot_weekly_done"])
+    assert len(weekly.data) == 1
+    assert weekly.layout.title.text == "90% predictive intervals cover 92% of values"
+    before = _as_json(F.residual_figure(snaps["snapshot_04_sampling"]))
+    assert _as_json(F.apply_updates(before, F.residual_updates(snap))) == _as_json(fig)
+
+
+def test_empty_figure():
+    fig = F.empty_figure("Load a series to begin.")
+    assert len(fig.data) == 0
+    assert fig.layout.annotations[0].text == "Load a series to begin."
+    fig.to_json()
+
+
+# ------------------------------------------------------------------ theme
+
+def test_theme_base_layout_merges():
+    layout = theme.base_layout(xaxis={"title": {"text": "Date"}}, yaxis3={"visible": False})
+    assert layout["xaxis"]["title"]["text"] == "Date"
+    assert layout["xaxis"]["gridcolor"] == theme.GRID  # kept from the base
+    assert layout["yaxis3"]["visible"] is False and layout["yaxis3"]["linecolor"] == theme.INK
+    assert 14 <= layout["font"]["size"] <= 16
+    assert theme.base_layout()["xaxis"].get("title", {}).get("text") is None
+    assert theme.rgba("#0072B2", 0.3) == "rgba(0,114,178,0.3)"
