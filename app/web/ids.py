@@ -7,6 +7,7 @@ RUN_ID = "run-id"  # the run the panels show
 FIGURE_RUN = "figure-run"  # {"run": id, "iteration": n} drawn so far
 HIGHLIGHT = "highlight-segment"
 URL = "url"
+REQUEST_RUN = "request-run"  # the run the address asks for
 POLL = "poll"
 
 # data

@@ -110,17 +110,7 @@ def run_section():
         html.Details(open=True, className="section", children=[
             html.Summary("Runs"),
             html.Button("Refresh", id=ids.REFRESH_RUNS, className="btn small", n_clicks=0),
-            dash_table.DataTable(
-                id=ids.RUN_LIST,
-                columns=[{"name": c, "id": k} for k, c in (
-                    ("when", "Started"), ("series", "Series"), ("K", "K"), ("status", "Status"))],
-                data=[], row_selectable=False, cell_selectable=True, page_size=8,
-                style_as_list_view=True,
-                style_cell={"fontSize": "13px", "padding": "3px", "textAlign": "left", "cursor": "pointer",
-                            "maxWidth": "120px", "overflow": "hidden", "textOverflow": "ellipsis"},
-                style_header={"fontWeight": "600"},
-                tooltip_duration=None,
-            ),
+            html.Div(id=ids.RUN_LIST, className="run-list"),
         ]),
     ])
 
@@ -153,7 +143,10 @@ def results_area():
                              {"name": "Bulk ESS", "id": "ess_bulk"}, {"name": "Tail ESS", "id": "ess_tail"},
                              {"name": "Status", "id": "status"}],
                     data=[], page_size=12, style_as_list_view=True,
-                    style_cell={"fontSize": "13px", "padding": "3px 6px", "textAlign": "left"},
+                    style_cell={"fontSize": "13px", "padding": "3px 6px", "textAlign": "left",
+                                "whiteSpace": "normal", "height": "auto"},
+                    style_cell_conditional=[{"if": {"column_id": "status"}, "width": "40%"}],
+                    style_table={"overflowX": "auto"},
                     style_header={"fontWeight": "600"},
                     style_data_conditional=[
                         {"if": {"filter_query": '{status} != "ok"'}, "color": "#A33A00", "fontWeight": "600"},
@@ -205,6 +198,7 @@ def page(samples, series_key=None, team_user=None):
         dcc.Store(id=ids.SERIES_KEY, data=series_key),
         dcc.Store(id=ids.CHANGEPOINTS, data=[]),
         dcc.Store(id=ids.RUN_ID, data=None),
+        dcc.Store(id=ids.REQUEST_RUN, data=None),
         dcc.Store(id=ids.FIGURE_RUN, data=None),
         dcc.Store(id=ids.HIGHLIGHT, data=None),
         dcc.Interval(id=ids.POLL, interval=400, disabled=True),

@@ -53,6 +53,24 @@ def rgba(hex_colour, alpha):
     return f"rgba({r},{g},{b},{alpha:g})"
 
 
+def blend(hex_colour, alpha, background=WHITE):
+    """The opaque ``#RRGGBB`` that ``hex_colour`` at opacity ``alpha`` shows over ``background``.
+
+    Parameters
+    ----------
+    hex_colour, background : str
+        ``"#RRGGBB"``.
+    alpha : float
+
+    Returns
+    -------
+    str
+    """
+    fg = [int(hex_colour.lstrip("#")[i:i + 2], 16) for i in (0, 2, 4)]
+    bg = [int(background.lstrip("#")[i:i + 2], 16) for i in (0, 2, 4)]
+    return "#" + "".join(f"{round(alpha * f + (1 - alpha) * b):02X}" for f, b in zip(fg, bg))
+
+
 # -- roles -------------------------------------------------------------------
 #: 7-day centred average of the counts.
 AVERAGE_LINE = INK
@@ -73,8 +91,10 @@ TENTATIVE_SPREAD = rgba(BLUISH_GREEN, 0.10)
 CHANGE_DATE_COLOURS = (VERMILLION, REDDISH_PURPLE, ORANGE, SKY_BLUE, BLACK)
 #: Interval line of a posterior change date on the main chart.
 CHANGE_DATE_INTERVAL = INK
-#: Shading of the segment picked in any panel.
-HIGHLIGHT = rgba(YELLOW, 0.35)
+#: Shading of the segment picked in any panel (and the same shade, opaque).
+HIGHLIGHT_ALPHA = 0.35
+HIGHLIGHT = rgba(YELLOW, HIGHLIGHT_ALPHA)
+HIGHLIGHT_SOLID = blend(YELLOW, HIGHLIGHT_ALPHA)
 #: Growth-rate rows: interval above zero, below zero, straddling zero.
 GROWING = VERMILLION
 SHRINKING = BLUE
@@ -131,8 +151,11 @@ _BASE = {
     "plot_bgcolor": WHITE,
     "colorway": list(CHAIN_COLOURS),
     "margin": {"l": 70, "r": 24, "t": 56, "b": 56},
+    # titles start at the figure's left edge (not the plot area's), so a long one
+    # still fits a narrow panel
     "title": {"font": {"size": TITLE_SIZE, "color": INK}, "x": 0.0, "xanchor": "left",
-              "xref": "paper", "y": 0.98, "yanchor": "top"},
+              "xref": "container", "pad": {"l": 12, "t": 8}, "y": 1.0, "yanchor": "top",
+              "yref": "container"},
     "xaxis": _axis(),
     "yaxis": _axis(),
     "legend": {"font": {"size": TICK_SIZE, "color": INK}, "bgcolor": "rgba(255,255,255,0.85)",

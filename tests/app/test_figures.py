@@ -1,8 +1,12 @@
-"""Figure builders of the dashboard (app/web/figures.py): structure, texts, updates.
+"""Figure builders of the dashboard (app/web/figures/): structure, texts, updates.
 
 The example snapshots in tests/app/data/ are engine snapshots of one run of
 the invented daily admissions sample (init, warm-up, sampling, done) and of
-the weekly sample (done), stored compactly.
+the weekly sample (done), stored compactly, from an older engine; the
+snapshot_v2_* files are from the current one (``interval_days``,
+``series_end``, ``traces.draw`` and ``traces.thin``, diagnostics thresholds,
+change-date bins on whole intervals), made by data/make_v2_snapshots.py with
+the traces of a few quantities only.
 """
 
 from __future__ import annotations
@@ -11,6 +15,7 @@ import copy
 import json
 import math
 import os
+import re
 
 import plotly.graph_objects as go
 import pytest
@@ -20,7 +25,8 @@ from app.web import theme
 
 DATA = os.path.join(os.path.dirname(os.path.abspath(__file__)), "data")
 DAILY_PHASES = ("snapshot_00_init", "snapshot_02_warmup", "snapshot_04_sampling", "snapshot_06_done")
-ALL_SNAPSHOTS = DAILY_PHASES + ("snapshot_weekly_done",)
+V2_SNAPSHOTS = ("snapshot_v2_sampling", "snapshot_v2_done", "snapshot_v2_weekly_done")
+ALL_SNAPSHOTS = DAILY_PHASES + ("snapshot_weekly_done",) + V2_SNAPSHOTS
 TENTATIVE = [{"day": 70.0, "spread_days": 7.0}, {"day": 170.5, "spread_days": 10.0}]
 
 
@@ -50,6 +56,11 @@ def _series_for(name, daily, weekly):
 
 def _as_json(fig):
     return json.loads(fig.to_json() if hasattr(fig, "to_json") else json.dumps(fig))
+
+
+def _plain(text):
+    """An annotation's text with its line breaks (empty panels wrap long messages) as spaces."""
+    return (text or "").replace("<br>", " ")
 
 
 def _unconverged(done):
@@ -341,17 +352,32 @@ def test_rates_texts_growing_shrinking_straddling():
         "doubling every 6.2 days (5.5–7.1)"
 
 
+def _named(fig, name):
+    found = [a for a in fig.layout.annotations if a.name == name]
+    assert len(found) == 1, name
+    return found[0]
+
+
 def test_rates_figure_rows(snaps):
     snap = _rates_snapshot()
     fig = F.rates_figure(snap, highlight_segment=2)
     bars, medians = fig.data
     assert [c[0] for c in bars.customdata] == [1, 2, 3]
     assert [c[0] for c in medians.customdata] == [1, 2, 3]
-    labels = list(fig.layout.yaxis.ticktext)
-    assert labels[0] == "Segment 1: 5 Jan – 14 Mar"
-    assert labels[1] == "<b>Segment 2: 14 Mar – 2 May</b>"
-    assert labels[2] == "Segment 3: 2 May – 29 Jun"  # last segment: end_date is the day after the data
-    assert fig.layout.yaxis.autorange == "reversed"
+    labels = [_named(fig, f"segment {k}").text for k in (1, 2, 3)]
+    assert labels[0].endswith("<b>Segment 1: 5 Jan – 14 Mar</b>")
+    assert labels[1].endswith("<b>Segment 2: 14 Mar – 2 May</b>")
+    assert labels[2].endswith("<b>Segment 3: 2 May – 29 Jun</b>")  # old engine: end_date is the day after the data
+    # each row's symbol, in its colour, starts the label
+    assert labels[0].startswith(f"<span style='color:{theme.GROWING}'>▲</span>")
+    assert labels[1].startswith(f"<span style='color:{theme.SHRINKING}'>▼</span>")
+    assert labels[2].startswith(f"<span style='color:{theme.UNCLEAR}'>●</span>")
+    assert fig.layout.yaxis.range[0] > fig.layout.yaxis.range[1]  # segment 1 at the top
+    # rows from the top, each label above its interval bar
+    assert list(bars.y) == sorted(bars.y) and list(medians.y) == list(bars.y)
+    for k, y in enumerate(bars.y):
+        assert k - 0.5 < y < k + 0.5
+        assert _named(fig, f"segment {k + 1}").y == k - 0.5
     # growth rates shown as % change per day, 100 (exp(r) - 1)
     assert medians.x[0] == pytest.approx(100 * (math.exp(math.log(2) / 12) - 1))
     assert bars.base[2] == pytest.approx(100 * (math.exp(-0.01) - 1))
@@ -359,13 +385,58 @@ def test_rates_figure_rows(snaps):
     assert "% change per day" in fig.layout.xaxis.title.text
     # symbols: above zero, below zero, straddling
     assert list(medians.marker.symbol) == ["triangle-up", "triangle-down", "circle"]
-    texts = [a.text for a in fig.layout.annotations]
-    assert "doubling every 12 days (9–17)<br>P(growing) > 99% · R 1.31 (1.22–1.41)" in texts
-    assert "<b>halving every 25 days (20–31)</b><br>P(growing) < 1%" in texts
-    assert any(s.type == "line" and s.x0 == 0 for s in fig.layout.shapes)  # zero line
-    assert any(s.type == "rect" and s.y0 == 0.5 for s in fig.layout.shapes)  # highlighted row 2
+    assert _named(fig, "segment 1 detail").text == "doubling every 12 days (9–17)<br>P(growing) > 99% · R 1.31 (1.22–1.41)"
+    assert _named(fig, "segment 2 detail").text == "<b>halving every 25 days (20–31)</b><br>P(growing) < 1%"
+    assert any(s.type == "line" and s.x0 == 0 and s.x1 == 0 for s in fig.layout.shapes)  # zero line
+    highlighted = [s for s in fig.layout.shapes if s.name == "highlighted segment"]
+    assert len(highlighted) == 1 and (highlighted[0].y0, highlighted[0].y1) == (0.5, 1.5)  # row 2
+    assert not any(s.name == "highlighted segment" for s in F.rates_figure(snap).layout.shapes)
     weekly = F.rates_figure(snaps["snapshot_weekly_done"])
-    assert weekly.layout.yaxis.ticktext[2] == "Segment 3: 10 Dec 2024 – 20 Jun 2025"
+    assert _named(weekly, "segment 3").text.endswith("<b>Segment 3: 10 Dec 2024 – 20 Jun 2025</b>")
+
+
+def test_rates_last_segment_ends_on_the_last_day_of_data(snaps):
+    """Old engines gave the last segment the day after the data as end_date, the current one the last day."""
+    old, new = snaps["snapshot_06_done"], snaps["snapshot_v2_done"]
+    assert old["segments"][-1]["end_date"] == "2026-10-05" and new["segments"][-1]["end_date"] == "2026-10-04"
+    for snap in (old, new):
+        fig = F.rates_figure(snap)
+        assert _named(fig, "segment 3").text.endswith("<b>Segment 3: 22 Jun – 4 Oct</b>")
+        assert _named(fig, "segment 1").text.endswith("<b>Segment 1: 5 Jan – 19 Mar</b>")
+    weekly = F.rates_figure(snaps["snapshot_v2_weekly_done"])  # last week starts 22 Dec 2025
+    assert _named(weekly, "segment 4").text.endswith("<b>Segment 4: 20 Jun 2025 – 28 Dec 2025</b>")
+    # without day offsets, series_end (the last value's date) bounds the last segment
+    seg = {"index": 2, "start_date": "2026-05-02", "end_date": "2026-06-30"}
+    assert F.segment_label(seg, last=True, series_end="2026-06-29") == "Segment 2: 2 May – 29 Jun"
+    assert F.segment_label(seg, last=True, series_end="2026-06-22", interval_days=7) == "Segment 2: 2 May – 28 Jun"
+    assert F.segment_label(seg, last=True) == "Segment 2: 2 May – 29 Jun"
+    assert F.segment_label(seg) == "Segment 2: 2 May – 30 Jun"
+
+
+def _text_lines(fig):
+    lines = []
+    for a in fig.layout.annotations:
+        text = re.sub(r"<[^>]+>", "", (a.text or "").replace("<br>", "\n"))
+        lines += [(a.name, line) for line in text.split("\n")]
+    return lines
+
+
+@pytest.mark.parametrize("name", ["snapshot_06_done", "snapshot_weekly_done", "snapshot_v2_sampling"])
+def test_rates_text_is_short_enough_for_a_narrow_column(name, snaps):
+    """Every line of text sits over the plot (nothing beside it) and stays short (a 360 px column)."""
+    fig = F.rates_figure(snaps[name], highlight_segment=1)
+    for a in fig.layout.annotations:
+        assert a.xref == "paper" and a.x == 0 and a.xanchor == "left"
+    for _, line in _text_lines(fig):
+        assert len(line) <= 56, line
+    # the longest texts: dates with years, an unbounded interval, R
+    longest = _segment(12, "2024-12-10", "2025-06-20", (-0.01, 0.008, 0.027),
+                       doubling={"median": 86.6, "q05": 25.7, "q95": None}, prob=0.74,
+                       rep={"median": 1.06, "q05": 0.98, "q95": 1.15})
+    fig = F.rates_figure({"phase": "sampling", "segments": [longest]})
+    for _, line in _text_lines(fig):
+        assert len(line) <= 56, line
+    assert "doubling every 87 days (> 26, or no doubling)" in _named(fig, "segment 12 detail").text
 
 
 # ------------------------------------------------------------- change dates
@@ -386,7 +457,7 @@ def test_changepoint_figure(snaps, daily, weekly):
     assert wk.layout.yaxis.title.text == "Share of draws per week"
     assert len(F.changepoint_figure(daily, snaps["snapshot_00_init"]).data) == 0
     one_segment = dict(snap, changepoints=[], changepoint_histograms={"edges_day": [0, 1], "counts": []})
-    assert "no change dates" in F.changepoint_figure(daily, one_segment).layout.annotations[0].text
+    assert "no change dates" in _plain(F.changepoint_figure(daily, one_segment).layout.annotations[0].text)
 
 
 def test_changepoint_updates(snaps, daily):
@@ -410,9 +481,12 @@ def test_trace_figure(snaps):
     # chains 1..7 in seven colours, chain 8 repeats chain 1's colour with a dash
     assert len({t.line.color for t in fig.data[:7]}) == 7
     assert fig.data[7].line.color == fig.data[0].line.color and fig.data[7].line.dash != fig.data[0].line.dash
-    assert "R-hat 1.003" in fig.layout.title.text
+    assert fig.layout.title.text == "change date 1 (day)"
+    assert fig.layout.annotations[1].text == "R-hat 1.003 · bulk ESS 2,194 · tail ESS 1,577"
+    assert fig.layout.showlegend is False
+    assert fig.layout.annotations[0].text.startswith("8 chains, one line style each")
     warm = F.trace_figure(snaps["snapshot_02_warmup"], "change date 1 (day)")
-    assert len(warm.data) == 0 and "warm-up" in warm.layout.annotations[0].text
+    assert len(warm.data) == 0 and "warm-up" in _plain(warm.layout.annotations[0].text)
     before = _as_json(F.trace_figure(snaps["snapshot_04_sampling"], "log level 0"))
     after = _as_json(F.trace_figure(snap, "log level 0"))
     assert _as_json(F.apply_updates(before, F.trace_updates(snap, "log level 0"))) == after
@@ -478,16 +552,19 @@ def test_weekday_figure(snaps):
     assert t.error_y.array[1] == pytest.approx(snap["weekday"][1]["q95"] - snap["weekday"][1]["median"])
     assert t.error_y.arrayminus[1] == pytest.approx(snap["weekday"][1]["median"] - snap["weekday"][1]["q05"])
     assert any(s.y0 == 1 and s.y1 == 1 for s in fig.layout.shapes)
-    assert any(a.text == "no weekday effect" for a in fig.layout.annotations)
+    assert any(s.y0 == 1 and s.name == "no weekday effect" for s in fig.layout.shapes)
+    # the line is explained under the plot, never on the data
+    key = [a for a in fig.layout.annotations if "no weekday effect" in a.text]
+    assert len(key) == 1 and key[0].yref == "paper" and key[0].y == 0 and key[0].yshift < 0
 
 
 def test_weekday_empty_state(snaps):
     fig = F.weekday_figure(snaps["snapshot_weekly_done"])
     assert len(fig.data) == 0
-    assert fig.layout.annotations[0].text == "Weekday effect not fitted (weekly series or switched off)"
+    assert _plain(fig.layout.annotations[0].text) == "Weekday effect not fitted (weekly series or switched off)"
     off = dict(snaps["snapshot_06_done"], weekday=None)
-    assert F.weekday_figure(off).layout.annotations[0].text.startswith("Weekday effect not fitted")
-    assert "appear" in F.weekday_figure(snaps["snapshot_00_init"]).layout.annotations[0].text
+    assert _plain(F.weekday_figure(off).layout.annotations[0].text).startswith("Weekday effect not fitted")
+    assert "appear" in _plain(F.weekday_figure(snaps["snapshot_00_init"]).layout.annotations[0].text)
 
 
 # --------------------------------------------------------------- residuals
@@ -512,6 +589,11 @@ def test_empty_figure():
     assert len(fig.data) == 0
     assert fig.layout.annotations[0].text == "Load a series to begin."
     fig.to_json()
+    # a long message is wrapped into short lines, words kept whole, for narrow panels
+    long = F.empty_figure("Traces appear once sampling starts (warm-up: iteration 50 of 139).")
+    lines = long.layout.annotations[0].text.split("<br>")
+    assert len(lines) == 2 and all(len(line) <= 40 for line in lines)
+    assert " ".join(lines) == "Traces appear once sampling starts (warm-up: iteration 50 of 139)."
 
 
 # ------------------------------------------------------------------ theme
@@ -524,3 +606,122 @@ def test_theme_base_layout_merges():
     assert 14 <= layout["font"]["size"] <= 16
     assert theme.base_layout()["xaxis"].get("title", {}).get("text") is None
     assert theme.rgba("#0072B2", 0.3) == "rgba(0,114,178,0.3)"
+
+
+# ------------------------------------------- sizes (the app sets no heights)
+
+def _every_figure(snap, series):
+    return [
+        F.main_figure(series, snap, TENTATIVE), F.changepoint_figure(series, snap),
+        F.rates_figure(snap), F.trace_figure(snap, "growth rate 1 (per day)"), F.weekday_figure(snap),
+        F.residual_figure(snap), F.empty_figure("waiting"),
+    ]
+
+
+@pytest.mark.parametrize("name", ALL_SNAPSHOTS + (None,))
+def test_every_figure_sets_its_height_and_room_for_titles(name, snaps, daily, weekly):
+    snap = snaps[name] if name else None
+    for fig in _every_figure(snap, _series_for(name or "", daily, weekly)):
+        assert isinstance(fig.layout.height, (int, float)) and 250 <= fig.layout.height <= 900
+        margin = fig.layout.margin
+        assert None not in (margin.t, margin.b, margin.l, margin.r)
+        if fig.layout.title.text:
+            assert margin.t >= 60  # the title, and the line or badge under it
+        if fig.layout.showlegend is not False and len(fig.data) > 1 and fig.layout.legend.orientation == "h":
+            assert fig.layout.legend.yref == "container" and margin.b >= 80  # legend under the plot
+    assert F.empty_figure("x", height=200).layout.height == 200
+
+
+def test_rates_height_grows_by_one_row_per_segment():
+    snap = _rates_snapshot()
+    three = F.rates_figure(snap).layout.height
+    two = F.rates_figure(dict(snap, segments=snap["segments"][:2])).layout.height
+    assert three - two == F.rates.ROW_PX
+
+
+# --------------------------------------------- fields of the current engine
+
+def test_v2_traces_use_draw_numbers_and_say_how_they_were_thinned(snaps):
+    samp, done = snaps["snapshot_v2_sampling"], snaps["snapshot_v2_done"]
+    name = "growth rate 1 (per day)"
+    fig = F.trace_figure(done, name)
+    assert "iteration" not in done["traces"]
+    assert list(fig.data[0].x) == done["traces"]["draw"]
+    assert fig.layout.xaxis.title.text == "Draw after warm-up"
+    assert done["traces"]["thin"] == 2 and "every 2nd draw shown" in fig.layout.annotations[0].text
+    assert samp["traces"]["thin"] == 1 and "shown" not in F.trace_figure(samp, name).layout.annotations[0].text
+    before = _as_json(F.trace_figure(samp, name))
+    after = _as_json(fig)
+    assert _as_json(F.apply_updates(before, json.loads(json.dumps(F.trace_updates(done, name))))) == after
+    # an old snapshot (iteration) keeps working
+    assert list(F.trace_figure(snaps["snapshot_06_done"], name).data[0].x) == snaps["snapshot_06_done"]["traces"]["iteration"]
+
+
+@pytest.mark.parametrize("name,step,word", [("snapshot_v2_done", 1, "day"), ("snapshot_v2_weekly_done", 7, "week")])
+def test_v2_change_date_bins_are_whole_intervals_under_the_count_bars(name, step, word, snaps, daily, weekly):
+    snap = snaps[name]
+    series = _series_for(name, daily, weekly)
+    assert snap["interval_days"] == step
+    fig = F.changepoint_figure(series, snap)
+    k = len(snap["changepoints"])
+    counts_x = set(F.main_figure(series).data[F.MAIN_TRACE_INDEX["counts"]].x)
+    for bars, shares in zip(fig.data[:k], snap["changepoint_histograms"]["counts"]):
+        assert list(bars.width) == [step * F.MS_PER_DAY] * len(bars.x)
+        assert set(bars.x) <= counts_x  # each bin sits on the bar of the interval it covers
+        assert sum(bars.y) == pytest.approx(sum(shares))
+    assert fig.layout.yaxis.title.text == f"Share of draws per {word}"
+
+
+def test_v2_diagnostics_thresholds_come_from_the_snapshot(snaps):
+    snap = {"phase": "sampling", "draws_per_chain": 120, "diagnostics": {
+        "converged": False, "rhat_max": 1.06, "ess_bulk_min": 90.0, "ess_tail_min": 120.0,
+        "criterion": "max R-hat < 1.01 and min bulk and tail ESS >= 400",  # stale text: the numbers win
+        "rhat_threshold": 1.05, "ess_threshold": 100, "parameters": [
+            {"name": "a", "rhat": 1.03, "ess_bulk": 150.0, "ess_tail": 120.0},
+            {"name": "b", "rhat": 1.06, "ess_bulk": 90.0, "ess_tail": 120.0}]}}
+    rows = {r["parameter"]: r["status"] for r in F.diagnostics_rows(snap)}
+    assert rows == {"a": "ok", "b": "chains disagree (R-hat ≥ 1.05); too few effective draws (ESS < 100)"}
+    summary = F.diagnostics_summary(snap)
+    assert "(needs < 1.05)" in summary and "(needs ≥ 100)" in summary
+    done = snaps["snapshot_v2_done"]
+    assert done["diagnostics"]["rhat_threshold"] == 1.01 and done["diagnostics"]["ess_threshold"] == 400
+    assert F.diagnostics_summary(done).startswith("Converged: max R-hat 1.00")
+    assert all(r["status"] == "ok" for r in F.diagnostics_rows(done))
+
+
+def test_v2_updates_reproduce_a_rebuild(snaps, daily):
+    samp, done = snaps["snapshot_v2_sampling"], snaps["snapshot_v2_done"]
+    for build, update in (
+        (lambda s: F.main_figure(daily, s, TENTATIVE, highlight_segment=3),
+         lambda s: F.main_updates(daily, s, TENTATIVE, highlight_segment=3)),
+        (lambda s: F.changepoint_figure(daily, s), lambda s: F.changepoint_updates(daily, s)),
+        (F.residual_figure, F.residual_updates),
+    ):
+        before, after = _as_json(build(samp)), _as_json(build(done))
+        assert _as_json(F.apply_updates(before, json.loads(json.dumps(update(done))))) == after
+
+
+def test_change_date_status_badge_follows_the_run(snaps, daily):
+    samp, done = snaps["snapshot_v2_sampling"], snaps["snapshot_v2_done"]
+    badge = F.changepoint_figure(daily, samp).layout.annotations[0]
+    assert badge.visible is True and badge.text == F.PROVISIONAL_NOTE
+    assert F.changepoint_figure(daily, done).layout.annotations[0].visible is False
+    assert F.changepoint_updates(daily, done)["annotations"][0]["visible"] is False
+    assert F.changepoint_figure(daily, _unconverged(done)).layout.annotations[0].text == F.NOT_CONVERGED_NOTE
+    assert F.changepoint_figure(daily, done).layout.title.text == "Change dates: where the draws put them"
+    # the residuals carry the same badge, patched the same way
+    assert F.residual_figure(samp).layout.annotations[0].text == F.PROVISIONAL_NOTE
+    assert F.residual_figure(done).layout.annotations[0].visible is False
+    assert F.residual_updates(done)["annotations"][0] == _as_json(F.residual_figure(done))["layout"]["annotations"][0]
+
+
+def test_v2_residuals_use_the_snapshot_interval(snaps):
+    weekly = F.residual_figure(snaps["snapshot_v2_weekly_done"])
+    assert weekly.data[0].x[0] == "2024-01-04 12:00:00"  # mid-week
+    assert weekly.data[0].customdata[0] == "week of Mon 1 Jan 2024"
+    assert weekly.layout.title.text == "90% predictive intervals cover 92% of values"
+    daily = F.residual_figure(snaps["snapshot_v2_done"])
+    assert daily.data[0].x[0] == "2026-01-05 12:00:00" and len(daily.data) == 2
+    # the by-weekday panel sits under the residuals over time, not beside them
+    assert daily.layout.yaxis2.domain[1] < daily.layout.yaxis.domain[0]
+    assert daily.layout.xaxis.domain is None and daily.layout.xaxis2.domain is None  # both full width

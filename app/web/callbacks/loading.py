@@ -69,7 +69,12 @@ def _read(store, data, label, region=None):
     return series, regions, region, raw_key
 
 
-def load(contents, sample, region, search, active_cell, filename, series_key):
+def request_from_url(search):
+    """The address names the run to show (fit, list click, a shared link, a reload)."""
+    return {"run": run_from_search(search)}
+
+
+def load(contents, sample, region, request, filename, series_key, current_run):
     """Load what the analyst asked for; on bad input keep what is on screen.
 
     Returns, in order: series key, change dates, run id, region options,
@@ -79,14 +84,12 @@ def load(contents, sample, region, search, active_cell, filename, series_key):
     svc = services()
     store = svc.store
     trig = ctx.triggered_id
-    if trig is None and run_from_search(search):
-        trig = ids.URL  # the page opened on a run's address
     keep = [no_update] * len(CONTROL_IDS)
     hidden = {"display": "none"}
     try:
-        if trig == ids.URL or trig == ids.RUN_LIST:
-            run_id = run_from_search(search) if trig == ids.URL else (active_cell or {}).get("row_id")
-            if not run_id:
+        if trig == ids.REQUEST_RUN or (trig is None and (request or {}).get("run")):
+            run_id = (request or {}).get("run")
+            if not run_id or run_id == current_run:  # e.g. Fit already shows it
                 return [no_update] * (8 + len(CONTROL_IDS))
             rec = svc.runs.get(run_id)
             if rec is None:
@@ -96,8 +99,7 @@ def load(contents, sample, region, search, active_cell, filename, series_key):
             key = put_series(store, series, label=rec.get("series_name", ""))
             options = rec["options"]
             cps = list(options.get("changepoint_priors") or [])
-            search_out = no_update if trig == ids.URL else f"?run={run_id}"
-            return [key, cps, run_id, [], None, hidden, "", search_out] + controls_from_options(
+            return [key, cps, run_id, [], None, hidden, "", no_update] + controls_from_options(
                 options, series.interval_days)
         if trig == ids.UPLOAD:
             data = decode_upload(contents, svc.max_upload_bytes)
@@ -158,22 +160,23 @@ def register(app):
     app.callback(
         Output(ids.SERIES_KEY, "data"),
         Output(ids.CHANGEPOINTS, "data", allow_duplicate=True),
-        Output(ids.RUN_ID, "data"),
+        Output(ids.RUN_ID, "data", allow_duplicate=True),
         Output(ids.REGION, "options"),
         Output(ids.REGION, "value"),
         Output(ids.REGION_ROW, "style"),
         Output(ids.DATA_ERROR, "children"),
-        Output(ids.URL, "search"),
+        Output(ids.URL, "search", allow_duplicate=True),
         *[Output(c, "value") for c in CONTROL_IDS],
         Input(ids.UPLOAD, "contents"),
         Input(ids.SAMPLE, "value"),
         Input(ids.REGION, "value"),
-        Input(ids.URL, "search"),
-        Input(ids.RUN_LIST, "active_cell"),
+        Input(ids.REQUEST_RUN, "data"),
         State(ids.UPLOAD, "filename"),
         State(ids.SERIES_KEY, "data"),
+        State(ids.RUN_ID, "data"),
         prevent_initial_call="initial_duplicate",
     )(load)
+    app.callback(Output(ids.REQUEST_RUN, "data"), Input(ids.URL, "search"))(request_from_url)
     app.callback(
         Output(ids.SERIES_INFO, "children"),
         Output(ids.DATA_NOTES, "children"),

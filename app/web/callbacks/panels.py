@@ -10,6 +10,9 @@ its number of traces changed.
 
 from __future__ import annotations
 
+import hashlib
+import json
+
 from dash import Input, Output, Patch, State, html, no_update
 
 from ... import wording
@@ -83,9 +86,10 @@ def _controls_state(rec):
     return (not live, not (live and may_stop), f"/brief/{rec['id']}", "btn link-btn")
 
 
-def _state(run_id, snapshot, counts, trace_param):
+def _state(run_id, snapshot, counts, trace_param, marks=None):
     return {"run": run_id, "iteration": (snapshot or {}).get("iteration"),
-            "phase": (snapshot or {}).get("phase"), "counts": counts, "trace_param": trace_param}
+            "phase": (snapshot or {}).get("phase"), "counts": counts, "trace_param": trace_param,
+            "marks": marks if marks is not None else _marks(snapshot)}
 
 
 def render(series_key, cps, style, scale, highlight, run_id, trace_param):
@@ -119,8 +123,28 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param):
             _state(run_id if rec else None, snap, counts, trace_param), poll_off, stop_off, href, brief_cls]
 
 
+def _fingerprint(obj):
+    return hashlib.md5(json.dumps(obj, sort_keys=True, default=str).encode()).hexdigest()[:12]
+
+
+def _marks(snapshot):
+    """What each secondary panel depends on, so unchanged panels are not redrawn."""
+    return {
+        "segments": _fingerprint((snapshot or {}).get("segments")),
+        "weekday": _fingerprint((snapshot or {}).get("weekday")),
+        "diag": (snapshot or {}).get("diagnostics_at_draw"),
+        "phase": (snapshot or {}).get("phase"),
+    }
+
+
 def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
-    """Patch the panels with the run's newest snapshot (no-op when nothing changed)."""
+    """Patch the panels with the run's newest snapshot (no-op when nothing changed).
+
+    The main chart, the change-date chart and the headline follow every
+    snapshot; the rates and weekday panels only when their numbers changed;
+    traces, diagnostics and the residual check only after a new convergence
+    check (they summarise the draws, which change slowly).
+    """
     keep = [no_update] * len(PANEL_OUTPUTS)
     rec, snap = _run_view(run_id)
     if rec is None:
@@ -138,6 +162,7 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
         return out
     sd = series.to_dict()
     counts = dict(state.get("counts") or {})
+    old, new = state.get("marks") or {}, _marks(snap)
     out[0] = to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight))
     hist_up = F.changepoint_updates(sd, snap)
     if hist_up["trace_count"] and hist_up["trace_count"] == counts.get("hist"):
@@ -145,26 +170,30 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     else:
         fig = F.changepoint_figure(sd, snap, highlight_segment=highlight)
         out[1], counts["hist"] = fig, len(fig.data)
-    out[2] = F.rates_figure(snap, highlight_segment=highlight)
-    options, param = _trace_choice(snap, trace_param)
-    tr_up = F.trace_updates(snap, param)
-    if tr_up["trace_count"] and tr_up["trace_count"] == counts.get("trace") and param == state.get("trace_param"):
-        out[3] = to_patch(tr_up)
-    else:
-        fig = F.trace_figure(snap, param)
-        out[3], counts["trace"] = fig, len(fig.data)
-    out[4], out[5] = options, param
-    out[6] = F.weekday_figure(snap)
-    res_up = F.residual_updates(snap)
-    if res_up["trace_count"] and res_up["trace_count"] == counts.get("resid"):
-        out[7] = to_patch(res_up)
-    else:
-        fig = F.residual_figure(snap)
-        out[7], counts["resid"] = fig, len(fig.data)
-    out[8] = F.diagnostics_rows(snap)
-    out[9] = F.diagnostics_summary(snap)
+    if new["segments"] != old.get("segments"):
+        out[2] = F.rates_figure(snap, highlight_segment=highlight)
+    if new["weekday"] != old.get("weekday"):
+        out[6] = F.weekday_figure(snap)
+    param = state.get("trace_param")
+    if new["diag"] != old.get("diag") or new["phase"] != old.get("phase"):
+        options, param = _trace_choice(snap, trace_param)
+        tr_up = F.trace_updates(snap, param)
+        if tr_up["trace_count"] and tr_up["trace_count"] == counts.get("trace") and param == state.get("trace_param"):
+            out[3] = to_patch(tr_up)
+        else:
+            fig = F.trace_figure(snap, param)
+            out[3], counts["trace"] = fig, len(fig.data)
+        out[4], out[5] = options, param
+        res_up = F.residual_updates(snap)
+        if res_up["trace_count"] and res_up["trace_count"] == counts.get("resid"):
+            out[7] = to_patch(res_up)
+        else:
+            fig = F.residual_figure(snap)
+            out[7], counts["resid"] = fig, len(fig.data)
+        out[8] = F.diagnostics_rows(snap)
+        out[9] = F.diagnostics_summary(snap)
     out[10] = headline_children(snap)
-    out[14] = _state(run_id, snap, counts, param)
+    out[14] = _state(run_id, snap, counts, param, new)
     return out
 
 

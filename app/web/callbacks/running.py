@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dash import Input, Output, State, ctx, no_update
+from dash import Input, Output, State, ctx, dcc, html, no_update
 
 from inference.errors import InputError
 
@@ -48,13 +48,13 @@ def options_from_controls(series, cps, segments, family, weekday, jumps, growth,
 
 def fit(n_clicks, series_key, cps, segments, family, weekday, jumps, growth, min_seg, drop_last,
         gi_mean, gi_sd, horizon, chains, draws, seed):
-    """Submit a run; returns (url search, error message)."""
+    """Submit a run; returns (url search, run id, error message)."""
     if not n_clicks:
-        return no_update, no_update
+        return no_update, no_update, no_update
     svc = services()
     series, _ = get_series(svc.store, series_key)
     if series is None:
-        return no_update, "Load a series first."
+        return no_update, no_update, "Load a series first."
     user, _ = current_user()
     try:
         opts = options_from_controls(series, cps or [], segments, family, weekday, jumps, growth, min_seg,
@@ -62,12 +62,12 @@ def fit(n_clicks, series_key, cps, segments, family, weekday, jumps, growth, min
         rec = svc.runs.submit(series, opts, owner=user)
     except InputError as exc:
         label = LABELS.get(exc.column, exc.column)
-        return no_update, f"{label}: {exc.detail}" if label else str(exc)
+        return no_update, no_update, f"{label}: {exc.detail}" if label else str(exc)
     except QueueUnavailable as exc:
-        return no_update, f"The fit queue is unavailable ({exc}); nothing was lost, try again shortly."
+        return no_update, no_update, f"The fit queue is unavailable ({exc}); nothing was lost, try again shortly."
     except PermissionError as exc:
-        return no_update, str(exc)
-    return f"?run={rec['id']}", ""
+        return no_update, no_update, str(exc)
+    return f"?run={rec['id']}", rec["id"], ""
 
 
 def stop(n_clicks, run_id):
@@ -89,21 +89,25 @@ STATUS_WORDS = {
 }
 
 
-def run_rows(_clicks, n_intervals, _run_id):
-    """Rows of the run list, newest first (refreshed every few polls while a run streams)."""
+def run_rows(_clicks, n_intervals, run_id):
+    """The run list, newest first: one link per run (refreshed every few polls while a run streams)."""
     if ctx.triggered_id == ids.POLL and (n_intervals or 0) % 5:
         return no_update
-    rows = []
+    items = []
     for rec in services().runs.list(limit=100):
-        rows.append({
-            "id": rec["id"],
-            "when": rec.get("created_at", "")[5:16].replace("T", " "),
-            "series": rec.get("series_name", ""),
-            "K": rec.get("segments"),
-            "status": STATUS_WORDS.get(rec["status"], rec["status"]),
-            "owner": rec.get("owner", ""),
-        })
-    return rows
+        when = rec.get("created_at", "")[5:16].replace("T", " ")
+        status = STATUS_WORDS.get(rec["status"], rec["status"])
+        label = [html.Span(when, className="run-when"), html.Span(rec.get("series_name", ""), className="run-series"),
+                 html.Span(f"K={rec.get('segments')}", className="run-k"),
+                 html.Span(status, className=f"run-status st-{rec['status']}")]
+        if services().team:
+            label.append(html.Span(rec.get("owner", ""), className="run-owner"))
+        items.append(dcc.Link(label, href=f"/?run={rec['id']}",
+                              className="run-item" + (" current" if rec["id"] == run_id else ""),
+                              title=f"run {rec['id']}"))
+    if not items:
+        return html.Div("No runs yet.", className="field-hint")
+    return items
 
 
 def register(app):
@@ -114,6 +118,7 @@ def register(app):
                 State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value")]
     app.callback(
         Output(ids.URL, "search", allow_duplicate=True),
+        Output(ids.RUN_ID, "data", allow_duplicate=True),
         Output(ids.FIT_ERROR, "children"),
         Input(ids.FIT, "n_clicks"),
         *controls,
@@ -126,7 +131,7 @@ def register(app):
         prevent_initial_call=True,
     )(stop)
     app.callback(
-        Output(ids.RUN_LIST, "data"),
+        Output(ids.RUN_LIST, "children"),
         Input(ids.REFRESH_RUNS, "n_clicks"),
         Input(ids.POLL, "n_intervals"),
         Input(ids.RUN_ID, "data"),

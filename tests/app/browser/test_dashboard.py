@@ -1,0 +1,136 @@
+"""Whole user paths in Chromium: upload, change dates, fit, watch, stop, reopen."""
+
+from __future__ import annotations
+
+import os
+import re
+import time
+
+import pytest
+
+from .conftest import ROOT, Server, graph_data, wait_for_graph
+
+pytestmark = [pytest.mark.browser, pytest.mark.slow]
+SAMPLE = os.path.join(ROOT, "sample_series", "daily_admissions.csv")
+
+
+def upload(page, path):
+    page.set_input_files("#upload input[type=file]", path)
+
+
+def wait_text(page, selector, pattern, timeout=60.0):
+    deadline = time.time() + timeout
+    text = ""
+    while time.time() < deadline:
+        text = page.inner_text(selector)
+        if re.search(pattern, text):
+            return text
+        time.sleep(0.2)
+    raise AssertionError(f"{selector} never matched {pattern!r}; last text: {text!r}")
+
+
+def trend_points(page):
+    data = graph_data(page) or []
+    band = [t for t in data if t["name"] and "credible interval" in t["name"]]
+    return band[0]["nonnull"] if band else 0
+
+
+def test_upload_add_drag_fit_watch_stop_reopen(server, page):
+    page.goto(server.url)
+    wait_for_graph(page)
+    upload(page, SAMPLE)
+    wait_text(page, "#series-info", r"273 days")
+    assert "negative count" in page.inner_text("#data-notes")
+    # add a tentative change date with the button, then drag its line
+    page.click("#add-change-date")
+    wait_text(page, "#change-date-list", r"\d{4}-\d\d-\d\d")
+    before = page.inner_text("#change-date-list")
+    first_date = re.search(r"\d{4}-\d\d-\d\d", before).group(0)
+    page.wait_for_selector(".shapelayer path[data-index='0']", state="attached")
+    time.sleep(1.0)
+    box = page.locator(".shapelayer path[data-index='0']").first.bounding_box()
+    x, y = box["x"] + box["width"] / 2, box["y"] + box["height"] / 2
+    page.mouse.move(x, y)
+    page.mouse.down()
+    page.mouse.move(x - 60, y, steps=8)
+    page.mouse.up()
+    after = wait_text(page, "#change-date-list", r"\d{4}-\d\d-\d\d")
+    deadline = time.time() + 15
+    while re.search(r"\d{4}-\d\d-\d\d", after).group(0) == first_date and time.time() < deadline:
+        time.sleep(0.3)
+        after = page.inner_text("#change-date-list")
+    moved = re.search(r"\d{4}-\d\d-\d\d", after).group(0)
+    assert moved < first_date, (first_date, moved)  # dragged left: an earlier date, whole days
+    assert page.input_value("#segments") == "2"
+    # a long run, so it is still going while we look
+    page.fill("#draws", "20000")
+    page.press("#draws", "Enter")
+    page.click("#fit-button")
+    wait_text(page, "#progress", r"Warm-up|Sampling|Finding", timeout=60)
+    deadline = time.time() + 60
+    while trend_points(page) == 0 and time.time() < deadline:
+        time.sleep(0.25)
+    assert trend_points(page) > 200
+    progress = page.inner_text("#progress")
+    assert not progress.startswith(("Converged", "Stopped", "Not converged")), progress
+    assert "Provisional" in page.inner_text("#status-banner")
+    hist = graph_data(page, "#change-date-chart") or []
+    assert any(t["nonnull"] > 0 for t in hist)
+    wait_text(page, "#progress", r"^Sampling", timeout=90)  # stop once draws are being kept
+    page.click("#stop-button")
+    wait_text(page, "#progress", r"^Stopped", timeout=60)
+    run_id = re.search(r"run=([0-9a-f]{16})", page.url).group(1)
+    # a second tab opens the run from the list and gets its panels back
+    other = page.context.new_page()
+    other.goto(server.url)
+    wait_for_graph(other)
+    other.wait_for_selector("#run-list a.run-item")
+    other.click(f"#run-list a[href='/?run={run_id}']")
+    deadline = time.time() + 30
+    while run_id not in other.url and time.time() < deadline:
+        time.sleep(0.2)
+    assert run_id in other.url
+    wait_text(other, "#progress", r"^Stopped")
+    assert trend_points(other) > 200
+    assert "Stopped by request" in other.inner_text("#status-banner")
+    assert page.console_errors == []
+
+
+def test_malformed_upload_shows_the_problem_and_keeps_the_series(server, page, tmp_path):
+    page.goto(server.url)
+    wait_for_graph(page)
+    upload(page, SAMPLE)
+    wait_text(page, "#series-info", r"273 days")
+    bad = tmp_path / "bad.csv"
+    bad.write_text("date,cases\n2026-01-01,4\n2026-01-02,lots\n2026-01-03,5\n")
+    upload(page, str(bad))
+    msg = wait_text(page, "#data-error", r"row 3")
+    assert "lots" in msg and "cases" in msg
+    assert "273 days" in page.inner_text("#series-info")  # what was on screen is kept
+    assert page.console_errors == []
+
+
+def test_a_run_survives_a_server_restart(tmp_path, page):
+    data = tmp_path / "restart"
+    data.mkdir()
+    first = Server(data, "--demo").start()
+    try:
+        page.goto(first.url)
+        wait_for_graph(page)
+        wait_text(page, "#series-info", r"273 days")
+        page.click("#fit-button")
+        wait_text(page, "#progress", r"^(Converged|Not converged)", timeout=120)
+        run_url = page.url
+    finally:
+        first.stop()
+    second = Server(data).start()
+    try:
+        page.goto("about:blank")
+        page.console_errors.clear()  # the old page's polls failed while its server was down
+        page.goto(run_url.replace(f":{first.port}", f":{second.port}"))
+        wait_for_graph(page)
+        wait_text(page, "#progress", r"^(Converged|Not converged)")
+        assert trend_points(page) > 200
+    finally:
+        second.stop()
+    assert page.console_errors == []

@@ -1,0 +1,139 @@
+"""Dashboard callbacks called as plain functions (no browser)."""
+
+from __future__ import annotations
+
+import base64
+import os
+
+import pytest
+from dash import no_update
+from dash._callback_context import context_value
+from dash._utils import AttributeDict
+
+from app.executors import InlineExecutor
+from app.runs import RunService
+from app.store.disk import DiskRunStore
+from app.web import create_app, ids
+from app.web.callbacks import changes, loading, panels, running
+from app.web.context import AppServices, get_series
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+SAMPLE = os.path.join(ROOT, "sample_series", "daily_admissions.csv")
+
+
+@pytest.fixture
+def app(tmp_path):
+    store = DiskRunStore(str(tmp_path / "store"))
+    services = AppServices(runs=RunService(store, InlineExecutor(store)), store=store)
+    return create_app(services)
+
+
+def trigger(prop_id, value=None):
+    context_value.set(AttributeDict(triggered_inputs=[{"prop_id": prop_id, "value": value}]))
+
+
+def _contents(path_or_text):
+    data = open(path_or_text, "rb").read() if os.path.exists(path_or_text) else path_or_text.encode()
+    return "data:text/csv;base64," + base64.b64encode(data).decode()
+
+
+def _load_sample(app):
+    trigger(f"{ids.UPLOAD}.contents")
+    out = loading.load(_contents(SAMPLE), None, None, None, "daily_admissions.csv", None, None)
+    return out[0]
+
+
+def test_upload_keeps_the_series_server_side(app):
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        series, rec = get_series(app.server.config["BENDLINE"].store, key)
+        assert series.n == 273 and rec["label"] == "daily_admissions.csv"
+        info, notes = loading.describe(key)
+        assert "273 days" in str(info) and "negative count" in str(notes)
+
+
+def test_a_bad_upload_reports_and_changes_nothing(app):
+    with app.server.test_request_context("/"):
+        trigger(f"{ids.UPLOAD}.contents")
+        out = loading.load(_contents("date,cases\n2026-01-01,1\n2026-01-02,x\n"), None, None, None, "bad.csv", "old",
+                           None)
+        assert out[0] is no_update  # the loaded series stays
+        assert "row 3" in out[6] and "'x'" in out[6]
+
+
+def test_long_format_upload_offers_regions(app):
+    with app.server.test_request_context("/"):
+        trigger(f"{ids.UPLOAD}.contents")
+        path = os.path.join(ROOT, "sample_series", "regions_long.csv")
+        out = loading.load(_contents(path), None, None, None, "regions_long.csv", None, None)
+        assert [o["value"] for o in out[3]] == ["Harrowmere", "Orlund", "Quillby", "Tamsey"]
+        assert out[4] == "Harrowmere" and out[5] == {}
+        trigger(f"{ids.REGION}.value", "Tamsey")
+        again = loading.load(None, None, "Tamsey", None, None, out[0], None)
+        series, _ = get_series(app.server.config["BENDLINE"].store, again[0])
+        assert series.name == "Tamsey"
+
+
+def test_change_date_edits(app):
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        trigger(f"{ids.ADD_CHANGE}.n_clicks", 1)
+        cps = changes.edit(1, None, None, [], [], [], key)
+        assert len(cps) == 1 and cps[0]["spread_days"] == 14.0
+        # a drag of line 0 snaps to whole days; zoom keys are not edits
+        trigger(f"{ids.MAIN}.relayoutData")
+        moved = changes.edit(1, None, {"shapes[0].x0": "2026-03-10 17:22:01.5", "shapes[0].x1": "x"}, [], [], cps, key)
+        assert moved[0]["day"] == 64.0  # 2026-01-05 + 64 days = 2026-03-10
+        assert changes.edit(1, None, {"autosize": True}, [], [], moved, key) is no_update
+        assert changes.edit(1, None, {"xaxis.range[0]": "2026-02-01"}, [], [], moved, key) is no_update
+        # a click adds a line where it lands
+        trigger(f"{ids.MAIN}.clickData")
+        two = changes.edit(1, {"points": [{"x": "2026-06-20"}]}, None, [], [], moved, key)
+        assert [c["day"] for c in two] == [64.0, 166.0]
+        # spread and removal by index
+        context_value.set(AttributeDict(triggered_inputs=[
+            {"prop_id": '{"index":1,"type":"change-spread"}.value', "value": 5}]))
+        spread = changes.edit(1, None, None, [14, 5], [0, 0], two, key)
+        assert spread[1]["spread_days"] == 5
+        assert changes.edit(1, None, None, [14, 5], [0, 0], spread, key) is no_update  # re-drawn inputs
+        context_value.set(AttributeDict(triggered_inputs=[
+            {"prop_id": '{"index":0,"type":"change-remove"}.n_clicks', "value": 1}]))
+        left = changes.edit(1, None, None, [14, 5], [1, 0], spread, key)
+        assert [c["day"] for c in left] == [166.0]
+        rows, k, disabled, note = changes.render_list(left, key, 3)
+        assert k == 2 and disabled and "set by the 1 change date" in note
+
+
+def test_fit_validates_and_names_the_control(app):
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        url, _, err = running.fit(1, key, [], 3, "negbin", ["on"], [], 20, None, 0, 5.0, None, 14, 8, 100, 1)
+        assert url is no_update and err.startswith("Generation interval")
+        url, _, err = running.fit(1, key, [], 3, "negbin", ["on"], [], None, None, 0, None, None, 14, 8, 100, 1)
+        assert "Growth-rate prior" in err and "empty" in err
+        url, _, err = running.fit(1, None, [], 3, "negbin", ["on"], [], 20, None, 0, None, None, 14, 8, 100, 1)
+        assert err == "Load a series first."
+
+
+def test_fit_submits_and_the_panels_render_the_run(app):
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        cps = [{"day": 70.0, "spread_days": 10.0}, {"day": 170.0, "spread_days": 10.0}]
+        url, run_id, err = running.fit(1, key, cps, 3, "negbin", ["on"], [], 20, None, 0, None, None, 14, 4, 100, 2)
+        assert err == "" and url == f"?run={run_id}"
+        rec = app.server.config["BENDLINE"].runs.get(run_id)
+        assert rec["options"]["segments"] == 3
+        assert rec["options"]["changepoint_priors"][0] == {"day": 70.0, "spread_days": 10.0}
+        out = panels.render(key, cps, "bars", "linear", None, run_id, None)
+        main = out[0]
+        assert [s["editable"] for s in main.layout.shapes[:2]] == [True, True]
+        assert any("credible" in (t.name or "") and len(t.y) == 273 for t in main.data)
+        assert out[15] is True  # the run is finished: no polling
+
+
+def test_to_patch_sets_only_what_changed():
+    p = panels.to_patch({"traces": {3: {"y": [1, 2]}}, "annotations": {0: {"text": "x"}}, "title": "t"})
+    ops = p.to_plotly_json()["operations"]
+    locations = [tuple(o["location"]) for o in ops]
+    assert ("data", 3, "y") in locations and ("layout", "annotations", 0) in locations
+    assert ("layout", "title", "text") in locations
