@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import os
 import socket
+import threading
 import time
 
 from inference.errors import InputError
@@ -20,7 +21,7 @@ from .version import CODE_VERSION
 
 #: The worker re-reads the stop flag at most this often (seconds).
 STOP_POLL = 0.25
-#: ... and writes a heartbeat at least this often while sampling.
+#: ... and a thread writes its heartbeat this often while the fit runs.
 HEARTBEAT_EVERY = 5.0
 
 
@@ -51,26 +52,28 @@ def execute_run(store_location, run_id, *, store=None):
     if store.stop_requested(run_id):
         store.update_run(run_id, status="stopped", reason="stopped before it started", finished_at=now_iso())
         return "stopped"
+    if not store.claim(run_id, "execute"):
+        return "duplicate"  # another worker already took this run
     started = time.time()
     store.heartbeat(run_id, started)
     store.update_run(run_id, status="running", started_at=now_iso(),
                      worker=f"{socket.gethostname()}:{os.getpid()}")
-    beat = {"t": started, "stop_t": 0.0, "stop": False}
+    beating = threading.Event()
+    threading.Thread(target=_beat, args=(store, run_id, beating), daemon=True).start()
+    poll = {"t": 0.0, "stop": False}
 
     def on_snapshot(snap):
         store.put_snapshot(run_id, snap)
-        store.heartbeat(run_id, time.time())
-        beat["t"] = time.time()
 
     def should_stop():
         now = time.time()
-        if now - beat["stop_t"] > STOP_POLL:
-            beat["stop_t"] = now
-            beat["stop"] = store.stop_requested(run_id)
-            if now - beat["t"] > HEARTBEAT_EVERY:
-                store.heartbeat(run_id, now)
-                beat["t"] = now
-        return beat["stop"]
+        if now - poll["t"] > STOP_POLL:
+            poll["t"] = now
+            try:
+                poll["stop"] = store.stop_requested(run_id)
+            except ConnectionError:
+                pass  # the store is away for a moment; keep sampling
+        return poll["stop"]
 
     try:
         series = Series.from_dict(store.get_series(run_id))
@@ -109,3 +112,18 @@ def execute_run(store_location, run_id, *, store=None):
         store.update_run(run_id, status="failed", finished_at=now_iso(),
                          reason=f"internal error in the worker ({type(exc).__name__}: {exc})")
         return "failed"
+    finally:
+        beating.set()
+
+
+def _beat(store, run_id, done):
+    """Write the run's heartbeat every few seconds while the fit runs.
+
+    A separate thread, so a long start search or convergence check never
+    looks like a dead worker; a killed process stops beating at once.
+    """
+    while not done.wait(HEARTBEAT_EVERY):
+        try:
+            store.heartbeat(run_id, time.time())
+        except ConnectionError:
+            pass

@@ -105,6 +105,10 @@ class RunStore:
     def get_upload(self, key):
         raise NotImplementedError
 
+    def claim(self, run_id, what):
+        """Atomically claim a one-time step of a run (e.g. "execute"); True for the first caller only."""
+        raise NotImplementedError
+
     # -- liveness
     def ping(self):
         """True when the store answers."""

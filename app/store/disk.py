@@ -69,7 +69,8 @@ class DiskRunStore(RunStore):
             n = self._cache.get(self._k(run_id, "draws:n"), 0)
             for i in range(n):
                 self._cache.delete(self._k(run_id, f"draws:{i}"))
-            for part in ("meta", "series", "snapshot", "result", "stop", "heartbeat", "draws:n", "draws:names"):
+            for part in ("meta", "series", "snapshot", "result", "stop", "heartbeat", "draws:n", "draws:names",
+                         "claim:execute", "claim:release"):
                 self._cache.delete(self._k(run_id, part))
             index = self._cache.get("runs:index", [])
             self._cache.set("runs:index", [r for r in index if r != run_id])
@@ -128,6 +129,9 @@ class DiskRunStore(RunStore):
 
     def last_heartbeat(self, run_id):
         return self._cache.get(self._k(run_id, "heartbeat"))
+
+    def claim(self, run_id, what):
+        return bool(self._cache.add(self._k(run_id, f"claim:{what}"), True))
 
     def put_upload(self, key, data, ttl_seconds=86400):
         self._cache.set(f"upload:{key}", data, expire=ttl_seconds)

@@ -129,3 +129,28 @@ def test_version_mismatch_is_reported_not_hung(tmp_path, series):
 
     assert execute_run(store.location, rec["id"], store=store) == "failed"
     assert "version" in store.get_run(rec["id"])["reason"]
+
+
+def test_runs_past_the_per_user_limit_wait_and_start_when_room_frees(tmp_path, series):
+    store = DiskRunStore(str(tmp_path))
+    queued = []
+
+    class Recording:
+        def submit(self, run_id):
+            queued.append(run_id)
+
+    svc = RunService(store, Recording(), max_in_flight=2)
+    a = svc.submit(series, FAST, owner="ana")
+    b = svc.submit(series, FAST, owner="ana")
+    c = svc.submit(series, FAST, owner="ana")
+    other = svc.submit(series, FAST, owner="bo")
+    assert queued == [a["id"], b["id"], other["id"]]
+    held = svc.get(c["id"])
+    assert held["held"] and held["status"] == "queued" and "waiting" in held["reason"]
+    svc.maintain()
+    assert c["id"] not in queued  # still no room
+    store.update_run(a["id"], status="converged")
+    svc.maintain()
+    svc.maintain()  # a second server process doing the same must not queue it twice
+    assert queued.count(c["id"]) == 1
+    assert not svc.get(c["id"])["held"]

@@ -90,6 +90,17 @@ def test_stop_flag_heartbeat_and_delete(store):
     assert rid not in [r["id"] for r in store.list_runs()]
 
 
+def test_claims_go_to_the_first_caller_only(store):
+    rid = "5" * 16
+    store.create_run(_record(rid), {})
+    assert store.claim(rid, "execute") is True
+    assert store.claim(rid, "execute") is False
+    assert store.claim(rid, "release") is True
+    store.delete_run(rid)
+    store.create_run(_record(rid), {})
+    assert store.claim(rid, "execute") is True  # a deleted run's claims go with it
+
+
 def test_uploads_and_ping(store):
     store.put_upload("k1", {"series": [1]})
     assert store.get_upload("k1") == {"series": [1]}
