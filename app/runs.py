@@ -15,7 +15,6 @@ import secrets
 import socket
 import time
 
-from inference.errors import InputError
 from inference.model import TrendModel
 from inference.series import Series
 from inference.spec import spec_from_options

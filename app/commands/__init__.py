@@ -5,7 +5,10 @@ from __future__ import annotations
 
 def register_all(sub):
     """Add every subcommand to an argparse subparsers object."""
-    from . import fit, serve
+    from . import batch, fit, serve, users, worker
 
     fit.register(sub)
+    batch.register(sub)
     serve.register(sub)
+    worker.register(sub)
+    users.register(sub)

@@ -23,6 +23,10 @@ def register(sub):
     p.add_argument("--redis", metavar="URL", help="Redis URL for team mode (broker and run store)")
     p.add_argument("--threads", type=int, default=8, help="web server threads (default 8)")
     p.add_argument("--processes", type=int, default=2, help="web server processes in team mode (default 2)")
+    p.add_argument("--max-in-flight", type=int, default=3,
+                   help="team mode: runs one user may have queued or running at once (default 3)")
+    p.add_argument("--insecure-cookies", action="store_true",
+                   help="team mode: allow the session cookie over plain HTTP (test setups only)")
     p.set_defaults(handler=run_serve)
 
 
@@ -47,7 +51,11 @@ def build_local_app(data_dir, *, workers=2, demo=False, warm=True):
     if warm:
         executor.warm_up()
     services = AppServices(runs=runs, store=store)
-    return create_app(services, demo_sample=DEFAULT_SAMPLE if demo else None), executor
+    app = create_app(services, demo_sample=DEFAULT_SAMPLE if demo else None)
+    from ..api import register_api
+
+    register_api(app.server)
+    return app, executor
 
 
 def run_serve(args):

@@ -19,6 +19,18 @@ STATUSES = ("queued", "running", "converged", "unconverged", "stopped", "failed"
 FINISHED = frozenset({"converged", "unconverged", "stopped", "failed"})
 
 
+class StoreUnavailable(ConnectionError):
+    """The run store cannot be reached or refuses service; the message names where.
+
+    A subclass of the built-in :class:`ConnectionError`, so code that only
+    knows about that (e.g. the worker's presence loop) catches it too.
+    """
+
+
+class BadRedisUrl(ValueError):
+    """The Redis URL cannot be used (wrong scheme, bad port or option)."""
+
+
 def valid_run_id(run_id):
     """True for a well-formed run id (16 lowercase hex digits). Callers check
     ids from requests with this before any store lookup is built from them."""

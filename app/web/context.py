@@ -96,3 +96,35 @@ def get_series(store, key):
     if rec is None:
         return None, None
     return Series.from_dict(rec["series"]), rec
+
+
+def store_guarded(fn, n_outputs, message_slots):
+    """Wrap a callback so an unreachable run store gives a message, not a 500.
+
+    Parameters
+    ----------
+    fn : callable
+        The callback body.
+    n_outputs : int
+        How many outputs it returns (1 means a bare value).
+    message_slots : dict of int -> str or callable
+        Output positions to fill when the store is down: a fixed value, or a
+        function of the error message.
+    """
+    import functools
+
+    from dash import no_update
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        try:
+            return fn(*args, **kwargs)
+        except ConnectionError as exc:
+            text = (f"The run store and queue are unavailable ({exc}). Nothing already saved is lost; "
+                    "this page retries by itself.")
+            out = [no_update] * n_outputs
+            for i, value in message_slots.items():
+                out[i] = value(text) if callable(value) else value
+            return out[0] if n_outputs == 1 else out
+
+    return wrapper

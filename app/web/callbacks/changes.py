@@ -8,7 +8,7 @@ import numpy as np
 from dash import ALL, Input, Output, State, ctx, dcc, html, no_update
 
 from .. import ids
-from ..context import get_series, services
+from ..context import get_series, services, store_guarded
 
 SHAPE_KEY = re.compile(r"^shapes\[(\d+)\]\.x0$")
 DEFAULT_SPREAD = 14.0
@@ -123,7 +123,7 @@ def register(app):
         State(ids.CHANGEPOINTS, "data"),
         State(ids.SERIES_KEY, "data"),
         prevent_initial_call=True,
-    )(edit)
+    )(store_guarded(edit, 1, {}))
     app.callback(
         Output(ids.CHANGE_LIST, "children"),
         Output(ids.SEGMENTS, "value", allow_duplicate=True),
@@ -133,4 +133,4 @@ def register(app):
         Input(ids.SERIES_KEY, "data"),
         State(ids.SEGMENTS, "value"),
         prevent_initial_call="initial_duplicate",
-    )(render_list)
+    )(store_guarded(render_list, 4, {}))

@@ -12,7 +12,7 @@ from inference.errors import InputError
 from inference.reader import list_regions, read_series
 
 from .. import ids
-from ..context import decode_upload, get_series, put_series, services
+from ..context import decode_upload, get_series, put_series, services, store_guarded
 
 # outputs of load(), in order
 CONTROL_IDS = (ids.FAMILY, ids.WEEKDAY, ids.JUMPS, ids.GROWTH_PRIOR, ids.MIN_SEGMENT, ids.DROP_LAST,
@@ -175,11 +175,11 @@ def register(app):
         State(ids.SERIES_KEY, "data"),
         State(ids.RUN_ID, "data"),
         prevent_initial_call="initial_duplicate",
-    )(load)
+    )(store_guarded(load, 8 + len(CONTROL_IDS), {6: lambda t: t}))
     app.callback(Output(ids.REQUEST_RUN, "data"), Input(ids.URL, "search"))(request_from_url)
     app.callback(
         Output(ids.SERIES_INFO, "children"),
         Output(ids.DATA_NOTES, "children"),
         Input(ids.SERIES_KEY, "data"),
-    )(describe)
+    )(store_guarded(describe, 2, {}))
 

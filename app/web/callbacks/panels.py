@@ -19,7 +19,7 @@ from ... import wording
 from ...store import FINISHED
 from .. import figures as F
 from .. import ids
-from ..context import current_user, get_series, services
+from ..context import current_user, get_series, services, store_guarded
 
 PANEL_OUTPUTS = (
     (ids.MAIN, "figure"), (ids.CHANGE_HIST, "figure"), (ids.RATES, "figure"), (ids.TRACE, "figure"),
@@ -54,6 +54,26 @@ def _run_view(run_id):
     if rec is None:
         return None, None
     return rec, svc.runs.snapshot(run_id)
+
+
+def queue_note(rec):
+    """For a queued run on a team server: are any workers connected, and on our version?"""
+    svc = services()
+    if rec is None or rec["status"] != "queued" or not svc.team or not hasattr(svc.store, "list_workers"):
+        return None
+    if rec.get("held"):
+        return rec.get("reason")
+    workers = svc.store.list_workers()
+    if not workers:
+        return ("Queued: no worker is connected to the team's queue. Start one with "
+                "'bendline worker --redis URL'; the run starts as soon as one connects.")
+    from ...version import CODE_VERSION
+
+    other = sorted({w.get("version") for w in workers} - {CODE_VERSION})
+    if other and not any(w.get("version") == CODE_VERSION for w in workers):
+        return (f"Queued, but the connected workers run engine version {', '.join(map(str, other))}, "
+                f"not this server's {CODE_VERSION}: update the workers.")
+    return f"Queued: waiting for one of {len(workers)} worker{'s' if len(workers) != 1 else ''}."
 
 
 def headline_children(snapshot):
@@ -155,7 +175,7 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     out = list(keep)
     banner_cls, banner = wording.status_line(rec, snap)
     poll_off, stop_off, href, brief_cls = _controls_state(rec)
-    out[11:14] = [wording.progress_line(rec, snap), banner, f"banner {banner_cls}"]
+    out[11:14] = [queue_note(rec) or wording.progress_line(rec, snap), banner, f"banner {banner_cls}"]
     out[15:19] = [poll_off, stop_off, href, brief_cls]
     if series is None or snap is None or state.get("run") != run_id or (
             snap.get("iteration") == state.get("iteration") and snap.get("phase") == state.get("phase")):
@@ -227,6 +247,10 @@ def sync_zoom(relayout):
 
 def register(app):
     outs = [Output(c, p) for c, p in PANEL_OUTPUTS]
+    n = len(PANEL_OUTPUTS)
+    down = {PANEL_OUTPUTS.index((ids.PROGRESS, "children")): lambda t: t,
+            PANEL_OUTPUTS.index((ids.STATUS_BANNER, "children")): lambda t: t,
+            PANEL_OUTPUTS.index((ids.STATUS_BANNER, "className")): "banner bad"}
     app.callback(
         *outs,
         Input(ids.SERIES_KEY, "data"),
@@ -236,7 +260,7 @@ def register(app):
         Input(ids.HIGHLIGHT, "data"),
         Input(ids.RUN_ID, "data"),
         Input(ids.TRACE_PARAM, "value"),
-    )(render)
+    )(store_guarded(render, n, down))
     app.callback(
         *[Output(c, p, allow_duplicate=True) for c, p in PANEL_OUTPUTS],
         Input(ids.POLL, "n_intervals"),
@@ -247,7 +271,7 @@ def register(app):
         State(ids.HIGHLIGHT, "data"),
         State(ids.TRACE_PARAM, "value"),
         prevent_initial_call=True,
-    )(poll)
+    )(store_guarded(poll, n, down))
     app.callback(
         Output(ids.HIGHLIGHT, "data"),
         Input(ids.RATES, "clickData"),

@@ -8,7 +8,7 @@ from inference.errors import InputError
 
 from ...runs import QueueUnavailable
 from .. import ids
-from ..context import current_user, get_series, services
+from ..context import current_user, get_series, services, store_guarded
 
 LABELS = {
     "segments": "Segments", "family": "Observation model", "weekday": "Day-of-week effect",
@@ -123,16 +123,16 @@ def register(app):
         Input(ids.FIT, "n_clicks"),
         *controls,
         prevent_initial_call=True,
-    )(fit)
+    )(store_guarded(fit, 3, {2: lambda t: t}))
     app.callback(
         Output(ids.FIT_ERROR, "children", allow_duplicate=True),
         Input(ids.STOP, "n_clicks"),
         State(ids.RUN_ID, "data"),
         prevent_initial_call=True,
-    )(stop)
+    )(store_guarded(stop, 1, {0: lambda t: t}))
     app.callback(
         Output(ids.RUN_LIST, "children"),
         Input(ids.REFRESH_RUNS, "n_clicks"),
         Input(ids.POLL, "n_intervals"),
         Input(ids.RUN_ID, "data"),
-    )(run_rows)
+    )(store_guarded(run_rows, 1, {}))

@@ -1,0 +1,54 @@
+"""The team server's WSGI application: Redis store, Celery executor, sign-in.
+
+Built once per web-server process (gunicorn forks several); each process
+runs a small maintenance thread that marks runs of dead workers failed and
+starts held runs.
+"""
+
+from __future__ import annotations
+
+import threading
+
+MAINTAIN_EVERY = 10.0
+
+
+def build_team_app(redis_url, *, cookie_secure=True, max_in_flight=3, maintain=True):
+    """The Dash app for team mode.
+
+    Parameters
+    ----------
+    redis_url : str
+    cookie_secure : bool
+    max_in_flight : int
+        Runs one user may have queued or running at once.
+    maintain : bool
+        Start the maintenance thread.
+    """
+    from ..api import register_api
+    from ..runs import RunService
+    from ..store.redis_store import RedisRunStore
+    from ..web import create_app
+    from ..web.context import AppServices
+    from .auth import install
+    from .tasks import CeleryExecutor
+    from .users import UserStore
+
+    store = RedisRunStore(redis_url)
+    runs = RunService(store, CeleryExecutor(redis_url), max_in_flight=max_in_flight)
+    services = AppServices(runs=runs, store=store, team=True)
+    app = create_app(services)
+    install(app.server, UserStore(redis_url), cookie_secure=cookie_secure)
+    register_api(app.server)
+    if maintain:
+        stop = threading.Event()
+        threading.Thread(target=_maintain, args=(runs, stop), daemon=True).start()
+        services.extra["stop_maintenance"] = stop
+    return app
+
+
+def _maintain(runs, stop):
+    while not stop.wait(MAINTAIN_EVERY):
+        try:
+            runs.maintain()
+        except ConnectionError:
+            pass  # Redis away: the page says so; try again later
