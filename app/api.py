@@ -174,6 +174,8 @@ def _unexpected(exc):
     """Errors inside the API never leak a traceback or a path."""
     if isinstance(exc, HTTPException):
         return _http_error(exc)
+    if isinstance(exc, ConnectionError):  # the run store (Redis) is unreachable: say so at once
+        return _error(503, "the run store and queue are unavailable; nothing saved is lost, try again shortly")
     current_app.logger.exception("API: internal error")
     return _error(500, "internal error while handling the request; it has been logged. "
                        "Please report it with what you sent")

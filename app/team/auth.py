@@ -19,7 +19,7 @@ import secrets
 from flask import g, jsonify, redirect, request, session
 
 PUBLIC_PREFIXES = ("/assets/", "/_dash-component-suites/")
-PUBLIC_PATHS = frozenset({"/login", "/_favicon.ico"})
+PUBLIC_PATHS = frozenset({"/login", "/_favicon.ico", "/favicon.ico"})
 
 
 def _safe_next(target):
@@ -30,7 +30,9 @@ def _safe_next(target):
 
 
 def login_page(message="", next_path="/", name=""):
-    token = secrets.token_urlsafe(16)
+    # one token per session: a second GET (another tab, a favicon redirect)
+    # must not invalidate a form already on screen
+    token = session.get("login_csrf") or secrets.token_urlsafe(16)
     session["login_csrf"] = token
     msg = f'<div class="error" role="alert">{html.escape(message)}</div>' if message else ""
     return f"""<!DOCTYPE html>
@@ -100,7 +102,7 @@ def install(flask_app, users, *, cookie_secure=True, session_hours=12):
         name = (request.form.get("name") or "").strip()
         password = request.form.get("password") or ""
         next_path = _safe_next(request.form.get("next"))
-        expected = session.pop("login_csrf", None)
+        expected = session.get("login_csrf")
         if not expected or not secrets.compare_digest(expected, request.form.get("csrf") or ""):
             return login_page("The sign-in form expired; please try again.", next_path, name), 400
         ip = request.remote_addr or "?"

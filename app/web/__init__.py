@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import html
 import os
 
 import dash
@@ -9,6 +10,22 @@ import dash
 from .context import ROOT, AppServices, put_series, sample_list
 
 ASSETS = os.path.join(ROOT, "assets")
+
+
+def _store_down(exc):
+    """An unreachable run store (Redis) answers 503 at once, in words, for pages and scripts."""
+    from flask import jsonify, request
+
+    message = (f"The run store and queue are unavailable ({exc}). Nothing already saved is lost; "
+               "try again in a moment.")
+    if request.path.startswith(("/api/", "/_dash-")) or request.accept_mimetypes.best == "application/json":
+        return jsonify({"error": {"message": message}}), 503
+    page = ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>Bendline: unavailable</title>"
+            "<meta http-equiv='refresh' content='5'><link rel='stylesheet' href='/assets/bendline.css'></head>"
+            f"<body><div class='login-page'><div class='login-box'><div class='logo'>Bendline</div>"
+            f"<div class='error' role='alert'>{html.escape(message)}</div>"
+            "<p class='help'>This page reloads every 5 seconds.</p></div></div></body></html>")
+    return page, 503
 
 
 def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
@@ -26,10 +43,15 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
     Returns
     -------
     dash.Dash
+        The dashboard; the briefing view (``/brief/<run id>``, a second Dash
+        app) and the downloads (``/download/<run id>/...``) are added to the
+        same Flask server.
     """
     from inference.reader import read_series
 
     from . import callbacks, layout
+    from .brief import create_brief_app
+    from .downloads import register_downloads
 
     app = dash.Dash(
         __name__,
@@ -42,6 +64,7 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
     server = app.server
     server.config["BENDLINE"] = services
     server.config["MAX_CONTENT_LENGTH"] = services.max_upload_bytes * 2  # base64 inflates by 4/3
+    server.register_error_handler(ConnectionError, _store_down)
     samples = sample_list(services.samples_dir)
     demo_key = None
     if demo_sample:
@@ -56,4 +79,6 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
 
     app.layout = serve_layout
     callbacks.register(app)
+    register_downloads(server)
+    create_brief_app(server, services)
     return app
