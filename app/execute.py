@@ -85,6 +85,8 @@ def execute_run(store_location, run_id, *, store=None):
             store.put_snapshot(run_id, final)
         if result is not None:
             result["run_id"] = run_id
+            if rec.get("kind") == "segment-count":
+                result["loo"] = _loo(series, rec["options"], store, run_id, final)
             store.put_result(run_id, result)
         status = final["status"] if final else "failed"
         fields = {
@@ -114,6 +116,17 @@ def execute_run(store_location, run_id, *, store=None):
         return "failed"
     finally:
         beating.set()
+
+
+def _loo(series, options, store, run_id, final):
+    """PSIS-LOO of a member of a segment-count comparison, from its stored draws."""
+    from inference.compare import loo_summary
+    from inference.model import TrendModel
+    from inference.spec import spec_from_options
+
+    model = TrendModel(series, spec_from_options(options)[0])
+    positions, _ = store.read_draws(run_id)
+    return loo_summary(model, positions, final)
 
 
 def _beat(store, run_id, done):

@@ -15,6 +15,7 @@ import secrets
 import socket
 import time
 
+from inference.errors import InputError
 from inference.model import TrendModel
 from inference.series import Series
 from inference.spec import spec_from_options
@@ -234,6 +235,79 @@ class RunService:
                 )
                 n += 1
         return n
+
+
+class SegmentComparison:
+    """"How many segments?": one fit per K = 1..6, then PSIS-LOO support.
+
+    The comparison is a run record of kind ``compare`` whose members are
+    ordinary runs of kind ``segment-count`` (so they run in parallel on the
+    workers); when every member has finished, :meth:`state` combines their
+    PSIS-LOO summaries with :func:`inference.compare.support_from_fits` and
+    stores the support as the comparison's result.
+    """
+
+    def __init__(self, runs):
+        self.runs = runs
+
+    def start(self, series, options, *, owner="local", ks=(1, 2, 3, 4, 5, 6)):
+        from inference.compare import _options_for
+
+        parent = new_run_id()
+        members, infeasible = [], []
+        for k in ks:
+            try:
+                rec = self.runs.submit(series, _options_for(options, k), owner=owner, kind="segment-count",
+                                       parent=parent)
+                members.append({"segments": k, "run": rec["id"]})
+            except InputError as exc:
+                infeasible.append({"segments": k, "feasible": False, "reason": exc.detail})
+        record = {
+            "id": parent, "kind": "compare", "owner": owner, "created_at": now_iso(),
+            "created_ts": self.runs.clock(), "series_name": series.name or "series",
+            "series_hash": series.content_hash(), "segments": None, "options": dict(options),
+            "seed": int(options.get("seed", 1)), "status": "running", "reason": None,
+            "members": members, "infeasible": infeasible, "code_version": CODE_VERSION,
+            "server_instance": self.runs.instance,
+        }
+        self.runs.store.create_run(record, series.to_dict())
+        return record
+
+    def state(self, compare_id):
+        """(record, support list or None): finishes the comparison when all members are done."""
+        from inference.compare import support_from_fits
+
+        rec = self.runs.get(compare_id)
+        if rec is None or rec.get("kind") != "compare":
+            return None, None
+        done = self.runs.result(compare_id)
+        if done is not None:
+            return rec, done["segment_support"]
+        fits = list(rec.get("infeasible", []))
+        finished = 0
+        for m in rec["members"]:
+            child = self.runs.get(m["run"])
+            if child is not None and child["status"] in FINISHED:
+                finished += 1
+                res = self.runs.result(m["run"])
+                if res and "loo" in res:
+                    fits.append(res["loo"])
+                else:
+                    fits.append({"segments": m["segments"], "feasible": False,
+                                 "reason": (child or {}).get("reason") or "the fit did not finish"})
+        rec = dict(rec, finished=finished)
+        if finished < len(rec["members"]):
+            return rec, None
+        try:
+            support = support_from_fits(fits)
+        except InputError as exc:
+            self.runs.store.update_run(compare_id, status="failed", reason=exc.detail, finished_at=now_iso())
+            return self.runs.get(compare_id), None
+        for row in support:
+            row.pop("pointwise", None)
+        self.runs.store.put_result(compare_id, {"segment_support": support})
+        rec = self.runs.store.update_run(compare_id, status="converged", finished_at=now_iso())
+        return rec, support
 
 
 class QueueUnavailable(RuntimeError):

@@ -77,20 +77,39 @@ def segment_fit(series_dict, options, k):
     for final in run(series, model_spec, settings, sink=sink):
         pass
     pos, _ = sink.read()
-    C, N, D = pos.shape
+    return dict(loo_summary(model, pos, final), segments=k)
+
+
+def loo_summary(model, positions, final=None):
+    """PSIS-LOO of one fit from its draws.
+
+    Parameters
+    ----------
+    model : TrendModel
+    positions : numpy.ndarray, shape (chains, draws, dim)
+    final : dict, optional
+        The run's final snapshot (for its convergence verdict).
+
+    Returns
+    -------
+    dict
+        ``segments``, ``feasible``, ``elpd_loo``, ``se``, ``p_loo``,
+        ``n_bad_k``, ``converged``, ``pointwise`` (list of floats).
+    """
+    C, N, D = positions.shape
     keep = np.arange(0, N, max(1, math.ceil(N * C / LOO_DRAWS)))
-    sub = pos[:, keep]
+    sub = positions[:, keep]
     ll = model.pointwise_log_lik(sub.reshape(-1, D)).reshape(C, keep.size, -1)
     _, values = reported_quantities(model, sub)
     res = loo(ll, reff=relative_eff(values))
     return {
-        "segments": k,
+        "segments": model.K,
         "feasible": True,
         "elpd_loo": float(res["elpd_loo"]),
         "se": float(res["se"]),
         "p_loo": float(res["p_loo"]),
         "n_bad_k": int(res["n_bad_k"]),
-        "converged": bool((final.get("diagnostics") or {}).get("converged", False)),
+        "converged": bool(((final or {}).get("diagnostics") or {}).get("converged", False)),
         "pointwise": [float(v) for v in res["elpd_pointwise"]],
     }
 

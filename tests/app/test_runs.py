@@ -154,3 +154,21 @@ def test_runs_past_the_per_user_limit_wait_and_start_when_room_frees(tmp_path, s
     svc.maintain()  # a second server process doing the same must not queue it twice
     assert queued.count(c["id"]) == 1
     assert not svc.get(c["id"])["held"]
+
+
+def test_a_segment_comparison_fits_each_count_and_recommends_one(tmp_path, series):
+    from app.runs import SegmentComparison
+
+    store = DiskRunStore(str(tmp_path))
+    svc = RunService(store, InlineExecutor(store))
+    cmp = SegmentComparison(svc)
+    rec = cmp.start(series, dict(FAST, draws=150), owner="ana", ks=(1, 2, 3, 9))
+    assert [m["segments"] for m in rec["members"]] == [1, 2, 3]
+    assert rec["infeasible"][0]["segments"] == 9  # too many for 90 days: reported, not fitted
+    done, support = cmp.state(rec["id"])
+    assert done["status"] == "converged"
+    assert [s["segments"] for s in support] == [1, 2, 3, 9]
+    assert [s["segments"] for s in support if s["recommended"]] == [2]
+    assert sum(s["weight"] for s in support) == pytest.approx(1.0, abs=1e-3)
+    again, support2 = cmp.state(rec["id"])  # stored: the same answer without recomputing
+    assert support2 == support

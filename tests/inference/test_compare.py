@@ -47,3 +47,35 @@ def test_two_segment_data_get_two_segments():
     assert rec == [2]
     assert out[0]["elpd_diff"] > 20  # one segment cannot follow a rise and a fall
     assert out[0]["weight"] < 0.05
+
+
+def test_loo_of_a_real_fit_matches_arviz():
+    # Reference: ArviZ 0.23.4 az.loo on the same pointwise log-likelihood
+    # draws, with the same relative efficiency (Vehtari, Gelman & Gabry 2017).
+    import arviz as az
+
+    from inference.compare import LOO_DRAWS, loo_summary
+    from inference.driver import run
+    from inference.loo import relative_eff
+    from inference.model import TrendModel
+    from inference.sinks import MemorySink
+    from inference.spec import ModelSpec, RunSettings
+    from inference.summaries import reported_quantities
+
+    series, _ = simulate(np.random.default_rng(8), "2026-01-05", 80, start_level=25.0,
+                         knot_days=[40.0], growth_rate_per_day=[0.03, -0.03])
+    spec = ModelSpec(segments=2, family="poisson", weekday=False)
+    sink = MemorySink()
+    for final in run(series, spec, RunSettings(chains=4, draws=300, max_draws=300, seed=2), sink=sink):
+        pass
+    pos, _ = sink.read()
+    model = TrendModel(series, spec)
+    ours = loo_summary(model, pos, final)
+    assert pos.shape[0] * pos.shape[1] <= LOO_DRAWS  # no thinning here, so both see the same draws
+    ll = model.pointwise_log_lik(pos.reshape(-1, pos.shape[2])).reshape(pos.shape[0], pos.shape[1], -1)
+    _, values = reported_quantities(model, pos)
+    idata = az.from_dict(posterior={"x": values[..., 0]}, log_likelihood={"y": ll})
+    ref = az.loo(idata, pointwise=True, reff=relative_eff(values))
+    assert ours["elpd_loo"] == pytest.approx(float(ref.elpd_loo), rel=1e-9)
+    assert ours["p_loo"] == pytest.approx(float(ref.p_loo), rel=1e-9)
+    assert ours["se"] == pytest.approx(float(ref.se), rel=1e-9)
