@@ -62,13 +62,14 @@ def ten_year_problem():
     )[0], 8
 
 
-def run_bendline(which):
+def run_bendline(which, seed=11):
     from inference.driver import run
     from inference.spec import ModelSpec, RunSettings
 
     series, K = reference_problem() if which == "reference" else ten_year_problem()
     spec = ModelSpec(segments=K, family="negbin", weekday=True)
-    settings = RunSettings(seed=11, max_seconds=300)
+    # as 'bendline fit' runs: default chains and draws, snapshots with counters only
+    settings = RunSettings(seed=seed, max_seconds=300, snapshot_summaries=False)
     t0 = time.perf_counter()
     final = None
     for snap in run(series, spec, settings):
@@ -88,7 +89,7 @@ def run_bendline(which):
     }
 
 
-def run_baseline():
+def run_baseline(seed=12):
     """Random-walk Metropolis, 4 chains, pilot-tuned diagonal proposal."""
     from inference import diagnostics
     from inference.init import find_starts
@@ -98,7 +99,7 @@ def run_baseline():
 
     series, K = reference_problem()
     model = TrendModel(series, ModelSpec(segments=K, family="negbin", weekday=True))
-    rng = np.random.default_rng(12)
+    rng = np.random.default_rng(seed)
     t0 = time.perf_counter()
     modes, lp0, chol = find_starts(model, rng)  # same starting help as ours, for fairness
     C, D = 4, model.dim
@@ -155,15 +156,41 @@ def run_baseline():
     }
 
 
-def child(which):
-    res = run_baseline() if which == "baseline" else run_bendline(which)
+def run_throughput(seed=11):
+    """Sampler throughput: 32 chains, 1000 draws each after warm-up, min-ESS per second of sampling."""
+    from inference.driver import run
+    from inference.spec import ModelSpec, RunSettings
+
+    series, K = reference_problem()
+    spec = ModelSpec(segments=K, family="negbin", weekday=True)
+    settings = RunSettings(seed=seed, chains=32, draws=1000, max_draws=1000, snapshot_summaries=False,
+                           snapshot_every=1000)
+    t0 = time.perf_counter()
+    for snap in run(series, spec, settings):
+        final = snap
+    seconds = time.perf_counter() - t0
+    d = final["diagnostics"]
+    ess = min(d["ess_bulk_min"], d["ess_tail_min"])
+    sampling = final["timings"]["sampling_seconds"]
+    return {"converged": d["converged"], "seconds": seconds, "min_ess": ess, "min_ess_per_s": ess / sampling,
+            "chains": final["chains"], "draws_per_chain": final["draws_per_chain"], "timings": final["timings"]}
+
+
+def child(which, seed):
+    if which == "baseline":
+        res = run_baseline(seed)
+    elif which == "throughput":
+        res = run_throughput(seed)
+    else:
+        res = run_bendline(which, seed)
     res["peak_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
     print(json.dumps(res))
 
 
-def spawn(which):
+def spawn(which, seed):
     out = subprocess.run(
-        [sys.executable, __file__, "--child", which], capture_output=True, text=True, check=True
+        [sys.executable, __file__, "--child", which, "--seed", str(seed)], capture_output=True, text=True,
+        check=True,
     )
     return json.loads(out.stdout.strip().splitlines()[-1])
 
@@ -171,18 +198,20 @@ def spawn(which):
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--child")
+    ap.add_argument("--seed", type=int, default=11)
     ap.add_argument("--repeats", type=int, default=3)
     ap.add_argument("--skip-ten-year", action="store_true")
     args = ap.parse_args()
     if args.child:
-        child(args.child)
+        child(args.child, args.seed)
         return
-    rows = {"reference": [], "baseline": [], "ten_year": []}
-    for _ in range(args.repeats):
-        rows["reference"].append(spawn("reference"))
-        rows["baseline"].append(spawn("baseline"))
+    rows = {"reference": [], "baseline": [], "throughput": [], "ten_year": []}
+    for i in range(args.repeats):
+        rows["reference"].append(spawn("reference", 11 + i))
+        rows["baseline"].append(spawn("baseline", 11 + i))
+        rows["throughput"].append(spawn("throughput", 11 + i))
     if not args.skip_ten_year:
-        rows["ten_year"].append(spawn("ten_year"))
+        rows["ten_year"].append(spawn("ten_year", 11))
 
     def med(key, what):
         vals = [r[what] for r in rows[key]]
@@ -191,6 +220,7 @@ def main():
     print(f"Engine benchmark, {args.repeats} repeats, medians (this machine, {os.cpu_count()} cores)")
     for key, label in (("reference", "Bendline, reference problem (365 d, K=4, negbin, weekday)"),
                        ("baseline", "Random-walk Metropolis baseline, same posterior"),
+                       ("throughput", "Bendline throughput: 32 chains x 1000 draws (min-ESS per s of sampling)"),
                        ("ten_year", "Bendline, 10-year daily series, K=8")):
         if not rows[key]:
             continue

@@ -432,20 +432,21 @@ class _Progress:
             "diagnostics_at_draw": diagnostics_at if diagnostics is not None else None,
             "traces": traces,
         }
-        if positions is None:
+        if positions is None or not self.settings.snapshot_summaries:
             return snap
         flat = positions if positions.ndim == 2 else positions.reshape(-1, positions.shape[-1])
         if flat.shape[0] > SNAPSHOT_DRAWS:
             idx = np.linspace(0, flat.shape[0] - 1, SNAPSHOT_DRAWS).astype(int)
             flat = flat[idx]
-        snap["band"] = summaries.band(model, flat, self.rng)
+        stats = summaries.predictive_summary(model, flat, self.rng)
+        snap["band"] = summaries.band(model, flat, self.rng, stats=stats)
         snap["segments"] = summaries.segments(model, flat, self.gi)
         snap["changepoints"] = summaries.changepoints(model, flat)
         snap["changepoint_histograms"] = summaries.changepoint_histograms(model, flat)
         snap["current"] = summaries.current(model, flat, self.gi)
         snap["projection"] = summaries.projection(model, flat, self.rng, self.settings.horizon)
         snap["weekday"] = summaries.weekday_effects(model, flat)
-        snap["checks"] = summaries.checks(model, flat, self.rng)
+        snap["checks"] = summaries.checks(model, flat, self.rng, stats=stats)
         return snap
 
 

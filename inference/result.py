@@ -94,6 +94,7 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
     names, values = summaries.reported_quantities(model, positions)
     diag = diagnose(names, values) if N >= 4 else {}
     full_spec = options_from_spec(model.spec, settings)
+    stats = summaries.predictive_summary(model, flat, rng)
     result = {
         "schema_version": SCHEMA_VERSION,
         "generated_at": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
@@ -121,10 +122,10 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
         "changepoint_histograms": summaries.changepoint_histograms(model, flat),
         "segments": summaries.segments(model, flat, gi),
         "current": summaries.current(model, flat, gi),
-        "band": summaries.band(model, flat, rng),
+        "band": summaries.band(model, flat, rng, stats=stats),
         "projection": summaries.projection(model, flat, rng, settings.horizon),
         "weekday": summaries.weekday_effects(model, flat),
-        "checks": summaries.checks(model, flat, rng),
+        "checks": summaries.checks(model, flat, rng, stats=stats),
         "data_quality": {
             "notes": [n.to_dict() for n in series.notes],
             "rows_read": series.rows_read,

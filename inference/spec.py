@@ -210,6 +210,9 @@ class RunSettings:
     snapshot_seconds : float
         Between checks, yield a lighter snapshot (diagnostics carried over)
         when this much time has passed; 0 turns that off.
+    snapshot_summaries : bool
+        Put bands, segments, change dates and checks in snapshots (for a
+        watcher); a headless fit needs only the counters and diagnostics.
     gi_mean_days, gi_sd_days : float or None
         Generation interval (gamma; sd 0 means fixed) for reproduction numbers.
     horizon : int
@@ -224,6 +227,7 @@ class RunSettings:
     max_seconds: float = 600.0
     snapshot_every: int = 50
     snapshot_seconds: float = 0.5
+    snapshot_summaries: bool = True
     gi_mean_days: float | None = None
     gi_sd_days: float | None = None
     horizon: int = 14
@@ -310,6 +314,8 @@ def spec_from_options(options):
     for name in ("weekday", "jumps"):
         if name in model and model[name] is not None:
             model[name] = _as_bool(name, model[name])
+    if "snapshot_summaries" in run:
+        run["snapshot_summaries"] = _as_bool("snapshot_summaries", run["snapshot_summaries"])
     return ModelSpec(**model), RunSettings(**run)
 
 

@@ -219,36 +219,59 @@ def current(model, theta, gi=None):
     }
 
 
-def band(model, theta, rng, predictive=True):
+#: Time points evaluated at once for bands and checks (bounds memory to
+#: draws x COLUMNS values per array, e.g. 4000 x 256 for a ten-year series).
+COLUMNS = 256
+
+
+def predictive_summary(model, theta, rng):
+    """Per-interval trend quantiles and predictive moments, computed in column chunks.
+
+    Returns
+    -------
+    dict of numpy.ndarray, each shape (n,)
+        ``trend_q05``, ``trend_q50``, ``trend_q95`` (lambda), and of the
+        predictive counts as reported: ``pred_q05``, ``pred_q95``,
+        ``pred_mean``, ``pred_sd``.
+    """
+    n = model.n
+    out = {k: np.empty(n) for k in ("trend_q05", "trend_q50", "trend_q95", "pred_q05", "pred_q95",
+                                    "pred_mean", "pred_sd")}
+    phi = model.constrain(theta)["dispersion"][:, None] if model.negbin else None
+    for lo in range(0, n, COLUMNS):
+        t = np.arange(lo, min(n, lo + COLUMNS))
+        trend = np.exp(np.clip(model.log_trend(theta, t), -700, 700))
+        out["trend_q05"][t], out["trend_q50"][t], out["trend_q95"][t] = _q(trend)
+        mu = np.exp(np.minimum(model.log_mean(theta, t, completeness=True), 700.0))
+        if phi is not None:
+            mu = rng.gamma(phi, mu / phi)
+        y = rng.poisson(np.minimum(mu, 1e15)).astype(float)
+        out["pred_q05"][t], out["pred_q95"][t] = np.quantile(y, (0.05, 0.95), axis=0)
+        out["pred_mean"][t] = y.mean(axis=0)
+        out["pred_sd"][t] = y.std(axis=0)
+    return out
+
+
+def band(model, theta, rng, predictive=True, stats=None):
     """Trend band (90%, with median) and predictive band over the series.
 
     The trend is lambda(t), the expected count with the day-of-week effect
     averaged out; the predictive band adds the weekday effect,
     overdispersion and the completeness fractions, so it is what the observed
-    values should fall in.
+    values should fall in. ``stats`` (from :func:`predictive_summary`) avoids
+    drawing the predictive counts twice when :func:`checks` needs them too.
     """
-    trend = np.exp(np.clip(model.log_trend(theta), -700, 700))
-    t05, t50, t95 = _q(trend)
+    stats = stats or predictive_summary(model, theta, rng)
     out = {
         "dates": dates_of_steps(model, range(model.n)),
-        "trend_q05": _flist(t05),
-        "trend_q50": _flist(t50),
-        "trend_q95": _flist(t95),
+        "trend_q05": _flist(stats["trend_q05"]),
+        "trend_q50": _flist(stats["trend_q50"]),
+        "trend_q95": _flist(stats["trend_q95"]),
     }
     if predictive:
-        y = _sample_reported(model, rng, theta, np.arange(model.n))
-        p05, p95 = np.quantile(y, (0.05, 0.95), axis=0)
-        out["predictive_q05"] = _flist(p05)
-        out["predictive_q95"] = _flist(p95)
+        out["predictive_q05"] = _flist(stats["pred_q05"])
+        out["predictive_q95"] = _flist(stats["pred_q95"])
     return out
-
-
-def _sample_reported(model, rng, theta, t):
-    mu = np.exp(np.minimum(model.log_mean(theta, t, completeness=True), 700.0))
-    if model.negbin:
-        phi = model.constrain(theta)["dispersion"][:, None]
-        mu = rng.gamma(phi, mu / phi)
-    return rng.poisson(np.minimum(mu, 1e15)).astype(float)
 
 
 def projection(model, theta, rng, horizon):
@@ -289,7 +312,7 @@ def weekday_effects(model, theta):
     ]
 
 
-def checks(model, theta, rng):
+def checks(model, theta, rng, stats=None):
     """Posterior predictive checks: coverage and residuals by day of week.
 
     Returns
@@ -302,16 +325,14 @@ def checks(model, theta, rng):
         ``pearson``: Pearson residual per observed value (null where
         missing), ``dates``.
     """
+    stats = stats or predictive_summary(model, theta, rng)
     t = np.arange(model.n)
-    y = _sample_reported(model, rng, theta, t)
-    lo, hi = np.quantile(y, (0.05, 0.95), axis=0)
     obs = model.obs_index
     yo = model.y_obs
-    inside = (yo >= lo[obs]) & (yo <= hi[obs])
-    mean = y.mean(axis=0)
-    sd = np.maximum(y.std(axis=0), 1e-9)
+    inside = (yo >= stats["pred_q05"][obs]) & (yo <= stats["pred_q95"][obs])
+    sd = np.maximum(stats["pred_sd"], 1e-9)
     pearson = np.full(model.n, np.nan)
-    pearson[obs] = (yo - mean[obs]) / sd[obs]
+    pearson[obs] = (yo - stats["pred_mean"][obs]) / sd[obs]
     out = {
         "coverage_90": _f(np.mean(inside)),
         "n_checked": int(obs.size),

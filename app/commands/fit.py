@@ -91,7 +91,10 @@ def run_fit(args):
             progress = None if args.quiet else sys.stderr
             support = compare_segments(series, options, log=progress)
         progress = None if args.quiet else ProgressLine()
-        result, final = fit_result(series, options, on_snapshot=progress, segment_support=support)
+        # nobody watches the panels of a headless fit: snapshots carry counters only
+        result, final = fit_result(series, dict(options, snapshot_summaries=False), on_snapshot=progress,
+                                   segment_support=support)
+        result["spec"].pop("snapshot_summaries", None)
     except InputError as exc:
         sys.stderr.write(f"bendline fit: {exc}\n")
         return EXIT_INPUT
