@@ -174,7 +174,7 @@ def status_line(record, snapshot):
     if st == "running":
         phase = (snapshot or {}).get("phase", "init")
         what = {"init": "finding starting points", "warmup": "warming up",
-                "sampling": f"sampling, {snapshot.get('draws_per_chain', 0)} draws per chain"}.get(phase, phase)
+                "sampling": f"sampling, {(snapshot or {}).get('draws_per_chain', 0)} draws per chain"}.get(phase, phase)
         tail = f" ({numbers})" if numbers else ""
         return "provisional", (f"Provisional: the fit is still running ({what}); the numbers will change "
                                f"and are not yet converged{tail}.")

@@ -94,6 +94,8 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
     names, values = summaries.reported_quantities(model, positions)
     diag = diagnose(names, values) if N >= 4 else {}
     full_spec = options_from_spec(model.spec, settings)
+    for display_only in ("snapshot_every", "snapshot_seconds", "snapshot_summaries"):
+        full_spec.pop(display_only, None)  # how progress was shown, not what was fitted
     stats = summaries.predictive_summary(model, flat, rng)
     result = {
         "schema_version": SCHEMA_VERSION,

@@ -5,10 +5,11 @@ from __future__ import annotations
 
 def register_all(sub):
     """Add every subcommand to an argparse subparsers object."""
-    from . import batch, fit, serve, users, worker
+    from . import batch, fit, report, serve, users, worker
 
     fit.register(sub)
     batch.register(sub)
+    report.register(sub)
     serve.register(sub)
     worker.register(sub)
     users.register(sub)

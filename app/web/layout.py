@@ -7,6 +7,7 @@ from dash import dash_table, dcc, html
 from inference.result import CAUTIONS
 
 from . import ids
+from .downloads import EXPORT_HINT, EXPORT_IDS, EXPORT_ROW, EXPORTS
 from .figures import empty_figure
 
 GRAPH_CONFIG = {
@@ -97,6 +98,18 @@ def model_section():
     ])
 
 
+def export_section():
+    """Links to the shown run's downloads (enabled by callbacks/exports.py once it has a result)."""
+    return html.Div(id=EXPORT_ROW, className="export-row", children=[
+        html.Span("Export", className="export-label"),
+        html.Div(className="export-links", children=[
+            html.A(label, id=EXPORT_IDS[key], href="#", className="btn small link-btn disabled")
+            for key, label, _file in EXPORTS
+        ]),
+        html.Div(id=EXPORT_HINT, className="field-hint"),
+    ])
+
+
 def run_section():
     return html.Div(className="section run-section", children=[
         html.Div(className="buttons", children=[
@@ -105,6 +118,7 @@ def run_section():
             html.A("Briefing view", id=ids.BRIEF_LINK, className="btn link-btn disabled", href="#",
                    target="_blank"),
         ]),
+        export_section(),
         html.Div(id=ids.FIT_ERROR, className="error", role="alert"),
         html.Div(id=ids.PROGRESS, className="progress", **{"aria-live": "polite"}),
         html.Details(open=True, className="section", children=[

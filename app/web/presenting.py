@@ -62,26 +62,47 @@ def label_projection(fig, view, *, font_size=None):
     return out
 
 
-def large_main(fig):
-    """The main chart with presentation type, sized by its container (no fixed height)."""
+def type_scale(viewport):
+    """How much larger than the base sizes the briefing's chart type should be for a window.
+
+    1 at 1600x900; 1.2 on a 1920x1080 projector; 0.85 at most smaller
+    (1280x800 laptops), 1.35 at most larger (4K screens).
+    """
+    try:
+        w, h = float(viewport["w"]), float(viewport["h"])
+    except (TypeError, KeyError, ValueError):
+        return 1.0
+    if w <= 0 or h <= 0:
+        return 1.0
+    return max(0.85, min(1.35, min(w / 1600.0, h / 900.0)))
+
+
+def large_main(fig, scale=1.0):
+    """The main chart with presentation type (times ``scale``), sized by its container (no fixed height)."""
     out = go.Figure(fig)
-    axis = {"tickfont": {"size": BRIEF_TICK}, "title": {"font": {"size": BRIEF_FONT}}}
+
+    def s(v):
+        return round(v * scale)
+
+    axis = {"tickfont": {"size": s(BRIEF_TICK)}, "title": {"font": {"size": s(BRIEF_FONT)}}}
     out.update_layout(
         height=None, autosize=True,
-        font={"size": BRIEF_FONT},
+        font={"size": s(BRIEF_FONT)},
         xaxis=dict(axis, title={"text": None}),
         yaxis=axis,
-        legend={"font": {"size": BRIEF_LEGEND}},
-        hoverlabel={"font": {"size": BRIEF_TICK}},
-        margin={"l": 90, "r": 28, "t": 58, "b": 110},
+        legend={"font": {"size": s(BRIEF_LEGEND)}},
+        hoverlabel={"font": {"size": s(BRIEF_TICK)}},
+        margin={"l": s(90), "r": 28, "t": s(80), "b": s(110)},
     )
     for ann in out.layout.annotations:
-        ann.font.size = BRIEF_NOTE if ann.name == "status" else BRIEF_LEGEND
+        ann.font.size = s(BRIEF_NOTE) if ann.name == "status" else s(BRIEF_LEGEND)
+        if ann.name == "status":
+            ann.yshift = s(24)  # clear of the change-date numbers above the plot
     for trace in out.data:
         if trace.name and trace.name.startswith("estimated change date (median"):
-            trace.textfont.size = BRIEF_LEGEND
+            trace.textfont.size = s(BRIEF_LEGEND)
             if trace.marker is not None:
-                trace.marker.size = 19
+                trace.marker.size = s(19)
     return out
 
 
@@ -112,6 +133,6 @@ def large_rates(fig, scale=BRIEF_RATES_SCALE):
         if ann.yshift:
             ann.yshift = s(ann.yshift)
     for trace in out.data:
-        if getattr(trace, "marker", None) is not None and isinstance(trace.marker.size, (int, float)):
+        if trace.type == "scatter" and isinstance(trace.marker.size, (int, float)):
             trace.marker.size = s(trace.marker.size)
     return out

@@ -8,9 +8,10 @@ from __future__ import annotations
 
 
 def register(app):
-    from . import changes, loading, panels, running
+    from . import changes, exports, loading, panels, running
 
     loading.register(app)
     changes.register(app)
     running.register(app)
     panels.register(app)
+    exports.register(app)

@@ -45,15 +45,32 @@ def to_patch(updates):
     return p
 
 
+RESULT_PARTS = ("band", "segments", "changepoints", "changepoint_histograms", "current", "projection",
+                "weekday", "checks")
+
+
 def _run_view(run_id):
-    """(record, snapshot) of the shown run, or (None, None)."""
+    """(record, view) of the shown run, or (None, None).
+
+    The view is the latest snapshot; once the run has its result, the
+    summaries come from the result (all draws), so the dashboard, the
+    briefing view and the reports show the same numbers.
+    """
     if not run_id:
         return None, None
     svc = services()
     rec = svc.runs.get(run_id)
     if rec is None:
         return None, None
-    return rec, svc.runs.snapshot(run_id)
+    snap = svc.runs.snapshot(run_id)
+    if snap is not None and rec["status"] in FINISHED:
+        result = svc.runs.result(run_id)
+        if result is not None:
+            snap = dict(snap, **{k: result[k] for k in RESULT_PARTS if k in result})
+            snap["diagnostics"] = dict(snap.get("diagnostics") or {}, **{
+                k: v for k, v in result["diagnostics"].items()
+                if k in ("converged", "rhat_max", "ess_bulk_min", "ess_tail_min", "parameters")})
+    return rec, snap
 
 
 def queue_note(rec):
