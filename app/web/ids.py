@@ -26,6 +26,12 @@ CHANGE_SPREAD = "change-spread"  # pattern-matching: {"type": CHANGE_SPREAD, "in
 CHANGE_REMOVE = "change-remove"  # pattern-matching
 SEGMENTS = "segments"
 SEGMENTS_NOTE = "segments-note"
+COMPARE = "compare-segments"  # "How many segments?"
+COMPARE_ID = "compare-id"
+COMPARE_POLL = "compare-poll"
+COMPARE_STATUS = "compare-status"
+COMPARE_FIG = "compare-chart"
+ADOPT = "adopt-segments"
 
 # model and priors
 FAMILY = "family"

@@ -64,6 +64,16 @@ def changepoint_section():
         html.Div(id=ids.CHANGE_LIST, className="change-list"),
         _field("Segments", _number(ids.SEGMENTS, 3, min_=1, max_=12, step=1),
                hint="", id_=ids.SEGMENTS_NOTE),
+        html.Div(className="compare", children=[
+            html.Button("How many segments?", id=ids.COMPARE, className="btn", n_clicks=0,
+                        title="Fit 1 to 6 segments and compare them by PSIS-LOO"),
+            dcc.Store(id=ids.COMPARE_ID, data=None),
+            dcc.Interval(id=ids.COMPARE_POLL, interval=1500, disabled=True),
+            html.Div(id=ids.COMPARE_STATUS, className="field-hint", **{"aria-live": "polite"}),
+            html.Div(id=ids.COMPARE_FIG),
+            html.Button("Use the recommended number", id=ids.ADOPT, className="btn small", n_clicks=0,
+                        style={"display": "none"}),
+        ]),
     ])
 
 

@@ -137,3 +137,24 @@ def test_to_patch_sets_only_what_changed():
     locations = [tuple(o["location"]) for o in ops]
     assert ("data", 3, "y") in locations and ("layout", "annotations", 0) in locations
     assert ("layout", "title", "text") in locations
+
+
+@pytest.mark.slow
+def test_how_many_segments_compares_and_adopts(app):
+    from app.web.callbacks import segments
+
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        cps = [{"day": 70.0, "spread_days": 10.0}]
+        cid, poll_off, status = segments.start(1, key, cps, 2, "negbin", ["on"], [], 20, None, 0, None, None,
+                                               14, 4, 100, 2)
+        assert poll_off is False and "Fitting 6 segment counts" in status
+        words, chart, label, style, off = segments.follow(1, cid)  # inline executor: all done already
+        assert off is True and style == {}
+        assert "The data support" in str(words)
+        k = int(label.split()[1])
+        assert 2 <= k <= 6
+        got_k, got_cps = segments.adopt(1, cid, cps)
+        assert got_k == k and got_cps == (cps if k == 2 else [])
+        # the member fits do not crowd the run list (no plain fits were made here)
+        assert "No runs yet" in str(running.run_rows(0, 0, None))

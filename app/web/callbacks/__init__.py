@@ -8,10 +8,11 @@ from __future__ import annotations
 
 
 def register(app):
-    from . import changes, exports, loading, panels, running
+    from . import changes, exports, loading, panels, running, segments
 
     loading.register(app)
     changes.register(app)
     running.register(app)
     panels.register(app)
     exports.register(app)
+    segments.register(app)

@@ -94,7 +94,9 @@ def run_rows(_clicks, n_intervals, run_id):
     if ctx.triggered_id == ids.POLL and (n_intervals or 0) % 5:
         return no_update
     items = []
-    for rec in services().runs.list(limit=100):
+    for rec in services().runs.list(limit=300):
+        if rec.get("kind", "fit") != "fit":
+            continue  # comparisons and their member fits are shown by "How many segments?"
         when = rec.get("created_at", "")[5:16].replace("T", " ")
         status = STATUS_WORDS.get(rec["status"], rec["status"])
         label = [html.Span(when, className="run-when"), html.Span(rec.get("series_name", ""), className="run-series"),

@@ -34,6 +34,7 @@ Modules
 ``traces``       the trace plot and its updates
 ``checks``       the day-of-week factors and the residuals of the predictive check
 ``diagnostics``  the convergence table and its summary
+``support``      how many segments the data support (stacking weights by K)
 
 Every figure sets ``layout.height``: the app does not size them with CSS.
 """
@@ -46,6 +47,7 @@ from .diagnostics import ESS_MIN, RHAT_LIMIT, diagnostics_rows, diagnostics_summ
 from .main import (MAIN_SNAPSHOT_TRACES, MAIN_STATUS_ANNOTATION, MAIN_TRACE_INDEX, MAIN_TRACES,
                    centred_average_7day, main_figure, main_updates)
 from .rates import growth_text, rates_figure, segment_label
+from .support import support_figure
 from .traces import trace_figure, trace_updates
 
 __all__ = [
@@ -53,6 +55,7 @@ __all__ = [
     "NOT_CONVERGED_NOTE", "NO_FIT_NOTE", "PROVISIONAL_NOTE", "RHAT_LIMIT", "apply_updates", "centred_average_7day",
     "changepoint_figure", "changepoint_updates", "day_to_x", "diagnostics_rows", "diagnostics_summary",
     "empty_figure", "growth_text", "is_final", "main_figure", "main_updates", "rates_figure", "residual_figure",
-    "residual_updates", "segment_label", "status_note", "trace_figure", "trace_updates", "weekday_figure",
+    "residual_updates", "segment_label", "status_note", "support_figure", "trace_figure", "trace_updates",
+    "weekday_figure",
     "x_to_day",
 ]

@@ -1,0 +1,99 @@
+""""How many segments?": start a comparison of K = 1..6, follow it, adopt its advice."""
+
+from __future__ import annotations
+
+from dash import Input, Output, State, dcc, html, no_update
+
+from inference.errors import InputError
+
+from ...runs import QueueUnavailable, SegmentComparison
+from .. import figures as F
+from .. import ids
+from ..context import current_user, get_series, services, store_guarded
+from .running import LABELS, options_from_controls
+
+HIDDEN, SHOWN = {"display": "none"}, {}
+
+
+def start(n_clicks, series_key, cps, segments, family, weekday, jumps, growth, min_seg, drop_last,
+          gi_mean, gi_sd, horizon, chains, draws, seed):
+    """Start one fit per K with the current options; returns (compare id, poll off, status)."""
+    if not n_clicks:
+        return no_update, no_update, no_update
+    svc = services()
+    series, _ = get_series(svc.store, series_key)
+    if series is None:
+        return no_update, no_update, "Load a series first."
+    user, _ = current_user()
+    try:
+        opts = options_from_controls(series, [], segments, family, weekday, jumps, growth, min_seg, drop_last,
+                                     gi_mean, gi_sd, horizon, chains, draws, seed)
+        rec = SegmentComparison(svc.runs).start(series, opts, owner=user)
+    except InputError as exc:
+        return no_update, no_update, f"{LABELS.get(exc.column, exc.column)}: {exc.detail}"
+    except QueueUnavailable as exc:
+        return no_update, no_update, f"The fit queue is unavailable ({exc})."
+    n = len(rec["members"])
+    return rec["id"], False, f"Fitting {n} segment counts (tentative change dates are not used here)…"
+
+
+def follow(_n, compare_id):
+    """Progress, then the comparison: (status, chart, adopt label, adopt style, poll off)."""
+    if not compare_id:
+        return "", [], no_update, HIDDEN, True
+    rec, support = SegmentComparison(services().runs).state(compare_id)
+    if rec is None:
+        return "That comparison no longer exists.", [], no_update, HIDDEN, True
+    if rec["status"] == "failed":
+        return f"The comparison failed: {rec.get('reason')}", [], no_update, HIDDEN, True
+    if support is None:
+        return (f"{rec.get('finished', 0)} of {len(rec['members'])} fits done…", no_update, no_update,
+                HIDDEN, False)
+    best = next((s for s in support if s.get("recommended")), None)
+    bad = [str(s["segments"]) for s in support if s.get("feasible") and not s.get("converged")]
+    words = (f"The data support {best['segments']} segment{'s' if best['segments'] != 1 else ''}: the "
+             "fewest whose PSIS-LOO score is within 4 (or 2 standard errors) of the best.") if best else ""
+    if bad:
+        words += f" Not converged: K = {', '.join(bad)}; read those scores with care."
+    skipped = [f"K = {s['segments']} ({s.get('reason')})" for s in support if not s.get("feasible")]
+    if skipped:
+        words += " Not fitted: " + "; ".join(skipped) + "."
+    chart = dcc.Graph(figure=F.support_figure(support), config={"displaylogo": False, "displayModeBar": False})
+    label = f"Use {best['segments']} segments" if best else no_update
+    return html.Div(words), chart, label, SHOWN if best else HIDDEN, True
+
+
+def adopt(n_clicks, compare_id, cps):
+    """Set the segment count to the recommendation (the change-date lines go if they disagree)."""
+    if not n_clicks or not compare_id:
+        return no_update, no_update
+    _, support = SegmentComparison(services().runs).state(compare_id)
+    best = next((s for s in support or [] if s.get("recommended")), None)
+    if best is None:
+        return no_update, no_update
+    k = best["segments"]
+    cps = cps or []
+    return k, (cps if len(cps) == k - 1 else [])
+
+
+def register(app):
+    controls = [State(ids.SERIES_KEY, "data"), State(ids.CHANGEPOINTS, "data"), State(ids.SEGMENTS, "value"),
+                State(ids.FAMILY, "value"), State(ids.WEEKDAY, "value"), State(ids.JUMPS, "value"),
+                State(ids.GROWTH_PRIOR, "value"), State(ids.MIN_SEGMENT, "value"), State(ids.DROP_LAST, "value"),
+                State(ids.GI_MEAN, "value"), State(ids.GI_SD, "value"), State(ids.HORIZON, "value"),
+                State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value")]
+    app.callback(
+        Output(ids.COMPARE_ID, "data"), Output(ids.COMPARE_POLL, "disabled"),
+        Output(ids.COMPARE_STATUS, "children"),
+        Input(ids.COMPARE, "n_clicks"), *controls, prevent_initial_call=True,
+    )(store_guarded(start, 3, {2: lambda t: t}))
+    app.callback(
+        Output(ids.COMPARE_STATUS, "children", allow_duplicate=True), Output(ids.COMPARE_FIG, "children"),
+        Output(ids.ADOPT, "children"), Output(ids.ADOPT, "style"), Output(ids.COMPARE_POLL, "disabled", allow_duplicate=True),
+        Input(ids.COMPARE_POLL, "n_intervals"), State(ids.COMPARE_ID, "data"), prevent_initial_call=True,
+    )(store_guarded(follow, 5, {0: lambda t: t}))
+    app.callback(
+        Output(ids.SEGMENTS, "value", allow_duplicate=True), Output(ids.CHANGEPOINTS, "data", allow_duplicate=True),
+        Input(ids.ADOPT, "n_clicks"), State(ids.COMPARE_ID, "data"), State(ids.CHANGEPOINTS, "data"),
+        prevent_initial_call=True,
+    )(store_guarded(adopt, 2, {}))
