@@ -12,7 +12,7 @@ import datetime as _dt
 import numpy as np
 
 from . import SCHEMA_VERSION, summaries
-from .driver import ESS_MIN, RHAT_MAX, diagnose
+from .snapshots import ESS_MIN, RHAT_MAX, diagnose
 from .spec import options_from_spec
 
 #: Shown with every result, in the app, the briefing view and the reports.
