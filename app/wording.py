@@ -255,7 +255,7 @@ def summary_sentence(result):
                  f"(90% interval {fmt_date_range(c['q05_date'], c['q95_date'])})")
     if how == "growing":
         t = time_text("doubling", cur.get("doubling_time_days"))
-        body = f"Counts have been growing{since}, by {fmt_pct(pct_per_day(g['median']))} a day ({rng})"
+        body = f"Counts have been growing{since}, by {fmt_pct(pct_per_day(g['median']), signed=False)} a day ({rng})"
         return body + (f", {t}." if t else ".")
     if how == "shrinking":
         t = time_text("halving", cur.get("halving_time_days"))

@@ -89,9 +89,13 @@ STATUS_WORDS = {
 }
 
 
-def run_rows(_clicks, n_intervals, run_id):
-    """The run list, newest first: one link per run (refreshed every few polls while a run streams)."""
-    if ctx.triggered_id == ids.POLL and (n_intervals or 0) % 5:
+def run_rows(_clicks, n_intervals, run_id, _poll_off=None):
+    """The run list, newest first: one link per run.
+
+    Refreshed on demand, when the shown run changes or finishes (its poll
+    stops), and every few polls while a run streams.
+    """
+    if ctx.triggered_id == ids.POLL and ctx.triggered[0]["prop_id"].endswith("n_intervals") and (n_intervals or 0) % 5:
         return no_update
     items = []
     for rec in services().runs.list(limit=300):
@@ -137,4 +141,5 @@ def register(app):
         Input(ids.REFRESH_RUNS, "n_clicks"),
         Input(ids.POLL, "n_intervals"),
         Input(ids.RUN_ID, "data"),
+        Input(ids.POLL, "disabled"),
     )(store_guarded(run_rows, 1, {}))
