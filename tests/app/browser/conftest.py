@@ -85,13 +85,10 @@ def server(tmp_path):
 
 
 @pytest.fixture(scope="session")
-def browser():
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROME_ARGS, headless=True)
-        yield b
-        b.close()
+def browser(playwright_driver):
+    b = playwright_driver.chromium.launch(executable_path=CHROMIUM, args=CHROME_ARGS, headless=True)
+    yield b
+    b.close()
 
 
 @pytest.fixture

@@ -17,15 +17,14 @@ SAMPLE = os.path.join(ROOT, "sample_series", "daily_admissions.csv")
 
 
 @pytest.fixture
-def two_browsers():
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as p:
-        a = p.chromium.launch(executable_path=CHROMIUM, args=CHROME_ARGS, headless=True)
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROME_ARGS, headless=True)
-        yield a, b
-        a.close()
-        b.close()
+def two_browsers(playwright_driver):
+    # Both from the session's one Playwright driver: a second sync_playwright()
+    # while the first is alive fails ("Sync API inside the asyncio loop").
+    a = playwright_driver.chromium.launch(executable_path=CHROMIUM, args=CHROME_ARGS, headless=True)
+    b = playwright_driver.chromium.launch(executable_path=CHROMIUM, args=CHROME_ARGS, headless=True)
+    yield a, b
+    a.close()
+    b.close()
 
 
 def _page(browser):
