@@ -6,7 +6,6 @@ import itertools
 import json
 
 import numpy as np
-import pytest
 
 from inference import SCHEMA_VERSION
 from inference.driver import _stuck_chains, run
