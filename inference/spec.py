@@ -226,7 +226,7 @@ class RunSettings:
     seed: int = 1
     max_seconds: float = 600.0
     snapshot_every: int = 50
-    snapshot_seconds: float = 0.5
+    snapshot_seconds: float = 0.3
     snapshot_summaries: bool = True
     gi_mean_days: float | None = None
     gi_sd_days: float | None = None

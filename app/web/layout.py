@@ -225,7 +225,7 @@ def page(samples, series_key=None, team_user=None):
         dcc.Store(id=ids.REQUEST_RUN, data=None),
         dcc.Store(id=ids.FIGURE_RUN, data=None),
         dcc.Store(id=ids.HIGHLIGHT, data=None),
-        dcc.Interval(id=ids.POLL, interval=400, disabled=True),
+        dcc.Interval(id=ids.POLL, interval=300, disabled=True),
         html.Header(className="header", children=[
             html.Div(className="brand", children=[html.Span("Bendline", className="logo"),
                                                   html.Span("growth, decline and change dates in count series",

@@ -6,7 +6,7 @@ import base64
 import os
 
 import pytest
-from dash import no_update
+from dash import Patch, no_update
 from dash._callback_context import context_value
 from dash._utils import AttributeDict
 
@@ -16,6 +16,8 @@ from app.store.disk import DiskRunStore
 from app.web import create_app, ids
 from app.web.callbacks import changes, loading, panels, running
 from app.web.context import AppServices, get_series
+
+from .figure_helpers import _load
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 SAMPLE = os.path.join(ROOT, "sample_series", "daily_admissions.csv")
@@ -129,6 +131,76 @@ def test_fit_submits_and_the_panels_render_the_run(app):
         assert [s["editable"] for s in main.layout.shapes[:2]] == [True, True]
         assert any("credible" in (t.name or "") and len(t.y) == 273 for t in main.data)
         assert out[15] is True  # the run is finished: no polling
+
+
+def test_poll_sets_controls_and_trace_picker_only_when_they_change(app):
+    # Dash fires every callback listening to an output that is set, even to
+    # the same value: a poll that re-sent "disabled" or the picker's value
+    # re-ran the run list, the export links and a full render each time.
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        _, run_id, _ = running.fit(1, key, [], 2, "negbin", ["on"], [], 20, None, 0, None, None, 14, 4, 100, 2)
+        trigger(f"{ids.RUN_ID}.data")
+        out = panels.render(key, [], "bars", "linear", None, run_id, None)
+        state, param = out[14], out[5]
+        assert state["controls"] == out[15:19] and param in state["trace_names"]
+        trigger(f"{ids.POLL}.n_intervals")
+        again = panels.poll(1, run_id, state, key, [], None, param)
+        assert all(v is no_update for v in again[15:19]) and again[5] is no_update
+        fresh = panels.poll(1, run_id, {"run": run_id}, key, [], None, param)
+        assert fresh[15] is True and fresh[14]["controls"] == out[15:19]
+        # the picker's value, set by a poll to what the state holds, does not redraw everything
+        trigger(f"{ids.TRACE_PARAM}.value", param)
+        skipped = panels.render(key, [], "bars", "linear", None, run_id, param, state)
+        assert all(v is no_update for v in skipped)
+        other = next(n for n in state["trace_names"] if n != param)
+        redrawn = panels.render(key, [], "bars", "linear", None, run_id, other, state)
+        assert redrawn[5] == other and redrawn[14]["trace_param"] == other
+
+
+def test_a_runs_first_band_is_sent_alone_and_the_other_panels_follow(app):
+    # the browser draws one patched chart far sooner than seven new ones
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        _, run_id, _ = running.fit(1, key, [], 2, "negbin", ["on"], [], 20, None, 0, None, None, 14, 4, 100, 2)
+        svc = app.server.config["BENDLINE"]
+        svc.store.update_run(run_id, status="running")  # as if still sampling
+        trigger(f"{ids.POLL}.n_intervals")
+        state = {"run": run_id, "iteration": 0, "phase": "init", "counts": {}, "banded": False}
+        first = panels.poll(1, run_id, state, key, [], None, None)
+        assert first[0] is not no_update and first[10] is not no_update
+        assert all(v is no_update for v in first[1:10])
+        assert first[14]["banded"] and first[14]["iteration"] is None
+        second = panels.poll(2, run_id, first[14], key, [], None, None)
+        assert all(second[i] is not no_update for i in (0, 1, 2, 3, 6, 7, 8))
+        assert second[14]["iteration"] is not None
+        # a finished run gets everything at once: its last poll stops the timer
+        svc.store.update_run(run_id, status="converged")
+        last = panels.poll(1, run_id, state, key, [], None, None)
+        assert last[15] is True and last[1] is not no_update and last[2] is not no_update
+
+
+def test_a_new_run_on_blank_panels_patches_the_main_chart_only(app):
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        trigger(f"{ids.SERIES_KEY}.data")
+        blank = panels.render(key, [], "bars", "linear", None, None, None)
+        assert blank[14]["run"] is None and blank[14]["series"] == key
+        _, run_id, _ = running.fit(1, key, [], 2, "negbin", ["on"], [], 20, None, 0, None, None, 14, 4, 100, 2)
+        svc = app.server.config["BENDLINE"]
+        svc.store.update_run(run_id, status="running")
+        svc.store.put_snapshot(run_id, _load("snapshot_00_init"))  # no band yet
+        trigger(f"{ids.RUN_ID}.data", run_id)
+        out = panels.render(key, [], "bars", "linear", None, run_id, None, blank[14])
+        assert isinstance(out[0], Patch) and all(v is no_update for v in out[1:10])
+        assert out[14]["run"] == run_id and out[15] is False  # polling starts
+        # with a band already there, or over another run's panels, everything is drawn
+        svc.store.put_snapshot(run_id, _load("snapshot_04_sampling"))
+        full = panels.render(key, [], "bars", "linear", None, run_id, None, blank[14])
+        assert not isinstance(full[0], Patch) and full[2] is not no_update
+        svc.store.put_snapshot(run_id, _load("snapshot_00_init"))
+        over = panels.render(key, [], "bars", "linear", None, run_id, None, full[14])
+        assert not isinstance(over[0], Patch)
 
 
 def test_to_patch_sets_only_what_changed():

@@ -163,9 +163,9 @@ def test_brief_of_an_unknown_run_says_so(site):
 def test_export_links_follow_the_run(site):
     app, _runs, done, waiting = site
     with app.server.test_request_context("/"):
-        ready = exports.links(done, 0, True)
-        queued = exports.links(waiting, 0, False)
-        none = exports.links(None, 0, True)
+        ready = exports.links(done, True)
+        queued = exports.links(waiting, False)
+        none = exports.links(None, True)
     hrefs = ready[0:-1:2]
     assert hrefs == [f"/download/{done}/{f}" for _k, _l, f in EXPORTS]
     assert all("disabled" not in c for c in ready[1:-1:2])

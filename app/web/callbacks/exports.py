@@ -10,7 +10,7 @@ from ..context import services, store_guarded
 from ..downloads import EXPORT_HINT, EXPORT_IDS, EXPORTS, export_links
 
 
-def links(run_id, _n_intervals, _poll_disabled):
+def links(run_id, _poll_disabled):
     """(href and className of each export link, then the hint) for the shown run."""
     runs = services().runs
     rec = runs.get(run_id) if run_id else None
@@ -31,6 +31,5 @@ def register(app):
         *outputs,
         Output(EXPORT_HINT, "children"),
         Input(ids.RUN_ID, "data"),
-        Input(ids.POLL, "n_intervals"),
         Input(ids.POLL, "disabled"),  # the run just finished: the poll that saw it stopped the timer
     )(store_guarded(links, n, {n - 1: lambda text: text}))

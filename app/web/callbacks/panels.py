@@ -13,7 +13,7 @@ from __future__ import annotations
 import hashlib
 import json
 
-from dash import Input, Output, Patch, State, html, no_update
+from dash import Input, Output, Patch, State, ctx, html, no_update
 
 from ... import wording
 from ...store import FINISHED
@@ -27,8 +27,12 @@ PANEL_OUTPUTS = (
     (ids.RESIDUALS, "figure"), (ids.DIAG_TABLE, "data"), (ids.DIAG_SUMMARY, "children"),
     (ids.HEADLINE, "children"), (ids.PROGRESS, "children"), (ids.STATUS_BANNER, "children"),
     (ids.STATUS_BANNER, "className"), (ids.FIGURE_RUN, "data"), (ids.POLL, "disabled"),
-    (ids.STOP, "disabled"), (ids.BRIEF_LINK, "href"), (ids.BRIEF_LINK, "className"),
+    (ids.STOP, "disabled"), (ids.BRIEF_LINK, "href"), (ids.BRIEF_LINK, "className"), (ids.POLL, "interval"),
 )
+
+#: Poll period (ms) while a run streams, and until its first band (the band
+#: comes a fraction of a second after Fit; a watcher should see it at once).
+POLL_MS, FIRST_POLL_MS = 300, 120
 
 
 def to_patch(updates):
@@ -126,11 +130,19 @@ def _controls_state(rec):
 def _state(run_id, snapshot, counts, trace_param, marks=None):
     return {"run": run_id, "iteration": (snapshot or {}).get("iteration"),
             "phase": (snapshot or {}).get("phase"), "counts": counts, "trace_param": trace_param,
-            "marks": marks if marks is not None else _marks(snapshot)}
+            "marks": marks if marks is not None else _marks(snapshot),
+            "banded": bool((snapshot or {}).get("band"))}
 
 
-def render(series_key, cps, style, scale, highlight, run_id, trace_param):
-    """Every panel, drawn from scratch."""
+def render(series_key, cps, style, scale, highlight, run_id, trace_param, state=None):
+    """Every panel, drawn from scratch.
+
+    Skipped when the only change is the trace picker's value and it is the
+    one the poll just chose (``state`` says so): the poll drew that panel.
+    """
+    if (state and state.get("run") == run_id and state.get("trace_param") == trace_param
+            and ctx.triggered_id == ids.TRACE_PARAM):
+        return [no_update] * len(PANEL_OUTPUTS)
     svc = services()
     series, _ = get_series(svc.store, series_key)
     rec, snap = _run_view(run_id)
@@ -138,11 +150,13 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param):
         blank = F.empty_figure("Load a series to begin.")
         return [blank, F.empty_figure(""), F.empty_figure("No fit yet."), F.empty_figure(""), [], None,
                 F.empty_figure(""), F.empty_figure(""), [], "", [], "", "", "", None, True, True, "#",
-                "btn link-btn disabled"]
+                "btn link-btn disabled", POLL_MS]
     sd = series.to_dict()
     # a run on another series (e.g. a new file was loaded) is not drawn over this one
     if rec is not None and rec.get("series_hash") != series.content_hash():
         rec, snap = None, None
+    if rec is not None and _shows_nothing_yet(state, series_key, run_id, snap):
+        return _start_run(sd, rec, snap, cps, highlight, run_id, trace_param, state)
     log_y = scale == "log"
     main = F.main_figure(sd, snap, cps or [], log_y=log_y, style=style, highlight_segment=highlight)
     hist = F.changepoint_figure(sd, snap, highlight_segment=highlight)
@@ -154,10 +168,42 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param):
     banner_cls, banner = wording.status_line(rec, snap)
     poll_off, stop_off, href, brief_cls = _controls_state(rec)
     counts = {"hist": len(hist.data), "trace": len(trace.data), "resid": len(resid.data)}
+    state = dict(_state(run_id if rec else None, snap, counts, trace_param), series=series_key,
+                 controls=[poll_off, stop_off, href, brief_cls], trace_names=[o["value"] for o in options])
     return [main, hist, rates, trace, options, trace_param, weekday, resid,
             F.diagnostics_rows(snap), F.diagnostics_summary(snap) if snap else "",
             headline_children(snap), wording.progress_line(rec, snap), banner, f"banner {banner_cls}",
-            _state(run_id if rec else None, snap, counts, trace_param), poll_off, stop_off, href, brief_cls]
+            state, poll_off, stop_off, href, brief_cls,
+            FIRST_POLL_MS if rec is not None and not poll_off and not state["banded"] else POLL_MS]
+
+
+def _shows_nothing_yet(state, series_key, run_id, snap):
+    """True when a new run was picked while the panels show this series and no run.
+
+    Then nothing but the main chart's status note would change until the run's
+    first band, so :func:`render` patches that instead of sending seven new
+    figures (which a busy browser takes most of a second to draw).
+    """
+    if not state or state.get("run") is not None or state.get("series") != series_key or state.get("banded"):
+        return False
+    if (snap or {}).get("band"):
+        return False
+    return {t["prop_id"] for t in ctx.triggered} == {f"{ids.RUN_ID}.data"}
+
+
+def _start_run(sd, rec, snap, cps, highlight, run_id, trace_param, state):
+    """render()'s outputs for a run just started on blank panels (see _shows_nothing_yet)."""
+    out = [no_update] * len(PANEL_OUTPUTS)
+    out[0] = to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight))
+    banner_cls, banner = wording.status_line(rec, snap)
+    controls = list(_controls_state(rec))
+    out[10:14] = [headline_children(snap), queue_note(rec) or wording.progress_line(rec, snap), banner,
+                  f"banner {banner_cls}"]
+    out[14] = dict(state, run=run_id, iteration=(snap or {}).get("iteration"), phase=(snap or {}).get("phase"),
+                   controls=controls)
+    out[15:19] = controls
+    out[19] = FIRST_POLL_MS
+    return out
 
 
 def _fingerprint(obj):
@@ -191,9 +237,14 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     state = state or {}
     out = list(keep)
     banner_cls, banner = wording.status_line(rec, snap)
-    poll_off, stop_off, href, brief_cls = _controls_state(rec)
     out[11:14] = [queue_note(rec) or wording.progress_line(rec, snap), banner, f"banner {banner_cls}"]
-    out[15:19] = [poll_off, stop_off, href, brief_cls]
+    # Controls only when they change: Dash fires every callback listening to an
+    # output that is set, even to the same value (the run list and the export
+    # links listen to the poll's "disabled").
+    controls = list(_controls_state(rec))
+    if controls != state.get("controls"):
+        out[15:19] = controls
+        out[14] = dict(state, controls=controls)
     if series is None or snap is None or state.get("run") != run_id or (
             snap.get("iteration") == state.get("iteration") and snap.get("phase") == state.get("phase")):
         return out
@@ -201,6 +252,16 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     counts = dict(state.get("counts") or {})
     old, new = state.get("marks") or {}, _marks(snap)
     out[0] = to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight))
+    out[10] = headline_children(snap)
+    if snap.get("band") and not state.get("banded") and not controls[0]:
+        # The run's first band: send the main chart alone so the browser draws
+        # it at once; the other panels follow on the next poll (the state keeps
+        # their old marks and no iteration, so that poll redraws them). Not
+        # when the run has finished: then this poll is the last.
+        first = dict(state, controls=controls, banded=True, iteration=None, phase=None)
+        out[14] = first
+        out[19] = POLL_MS
+        return out
     hist_up = F.changepoint_updates(sd, snap)
     if hist_up["trace_count"] and hist_up["trace_count"] == counts.get("hist"):
         out[1] = to_patch(hist_up)
@@ -220,7 +281,12 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
         else:
             fig = F.trace_figure(snap, param)
             out[3], counts["trace"] = fig, len(fig.data)
-        out[4], out[5] = options, param
+        # the picker's value is an input of render(): set it only when it changes
+        trace_names = [o["value"] for o in options]
+        if trace_names != state.get("trace_names"):
+            out[4] = options
+        if param != trace_param:
+            out[5] = param  # render() sees it equals the state's and skips
         res_up = F.residual_updates(snap)
         if res_up["trace_count"] and res_up["trace_count"] == counts.get("resid"):
             out[7] = to_patch(res_up)
@@ -229,8 +295,9 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
             out[7], counts["resid"] = fig, len(fig.data)
         out[8] = F.diagnostics_rows(snap)
         out[9] = F.diagnostics_summary(snap)
-    out[10] = headline_children(snap)
-    out[14] = _state(run_id, snap, counts, param, new)
+    else:
+        trace_names = state.get("trace_names")
+    out[14] = dict(_state(run_id, snap, counts, param, new), controls=controls, trace_names=trace_names)
     return out
 
 
@@ -277,6 +344,7 @@ def register(app):
         Input(ids.HIGHLIGHT, "data"),
         Input(ids.RUN_ID, "data"),
         Input(ids.TRACE_PARAM, "value"),
+        State(ids.FIGURE_RUN, "data"),
     )(store_guarded(render, n, down))
     app.callback(
         *[Output(c, p, allow_duplicate=True) for c, p in PANEL_OUTPUTS],

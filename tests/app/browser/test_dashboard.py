@@ -74,8 +74,14 @@ def test_upload_add_drag_fit_watch_stop_reopen(server, page):
     progress = page.inner_text("#progress")
     assert not progress.startswith(("Converged", "Stopped", "Not converged")), progress
     assert "Provisional" in page.inner_text("#status-banner")
+    # the other panels follow the first band on the next poll (a fraction of a second)
+    deadline = time.time() + 15
     hist = graph_data(page, "#change-date-chart") or []
+    while not any(t["nonnull"] > 0 for t in hist) and time.time() < deadline:
+        time.sleep(0.25)
+        hist = graph_data(page, "#change-date-chart") or []
     assert any(t["nonnull"] > 0 for t in hist)
+    assert not page.inner_text("#progress").startswith(("Converged", "Stopped", "Not converged"))
     wait_text(page, "#progress", r"^Sampling", timeout=90)  # stop once draws are being kept
     page.click("#stop-button")
     wait_text(page, "#progress", r"^Stopped", timeout=60)

@@ -79,8 +79,9 @@ def test_a_second_person_watches_a_fit_the_first_started(team_server, workers, t
     assert bo.inner_text("#progress") != it1  # bo's panels follow the run live
     assert bo.is_disabled("#stop-button")  # only the owner (or an admin) stops a run
     assert ADMIN in bo.inner_text("#run-list")  # runs show their owner
+    wait_text(bo, "#progress", r"^Sampling", timeout=90)  # stop once draws are being kept
     ana.click("#stop-button")
     wait_text(bo, "#progress", r"^Stopped", timeout=60)
     hist = graph_data(bo, "#change-date-chart") or []
-    assert any(t["nonnull"] > 0 for t in hist)
+    assert any(t["nonnull"] > 0 for t in hist), (bo.inner_text("#progress"), bo.inner_text("#status-banner"), hist)
     assert ana.console_errors == [] and bo.console_errors == []
