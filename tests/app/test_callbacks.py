@@ -171,9 +171,29 @@ def test_a_runs_first_band_is_sent_alone_and_the_other_panels_follow(app):
         assert first[0] is not no_update and first[10] is not no_update
         assert all(v is no_update for v in first[1:10])
         assert first[14]["banded"] and first[14]["iteration"] is None
+        # then one group of panels per poll: the draws' summaries (a new check) ...
         second = panels.poll(2, run_id, first[14], key, [], None, None)
-        assert all(second[i] is not no_update for i in (0, 1, 2, 3, 6, 7, 8))
+        assert all(second[i] is not no_update for i in (0, 3, 7, 8)) and second[1] is second[2] is no_update
         assert second[14]["iteration"] is not None
+        snap = svc.store.get_snapshot(run_id)
+
+        def newer(by, flip=True):  # a later snapshot, with other segment numbers when flipped
+            svc.store.put_snapshot(run_id, dict(snap, iteration=snap["iteration"] + by,
+                                                segments=snap["segments"][::-1] if flip else snap["segments"]))
+
+        # ... then the change dates, rates and weekday panels
+        newer(3)
+        third = panels.poll(3, run_id, second[14], key, [], None, None)
+        assert third[1] is not no_update and third[2] is not no_update and third[3] is no_update
+        # a newer snapshot a moment later moves the main chart only ...
+        newer(7)
+        fourth = panels.poll(4, run_id, third[14], key, [], None, None)
+        assert fourth[0] is not no_update and fourth[1] is fourth[2] is no_update
+        # ... and once SECONDARY_SECONDS have passed, the others follow
+        later = dict(fourth[14], secondary_at=fourth[14]["secondary_at"] - panels.SECONDARY_SECONDS)
+        newer(9, flip=False)
+        fifth = panels.poll(5, run_id, later, key, [], None, None)
+        assert fifth[1] is not no_update and fifth[2] is not no_update
         # a finished run gets everything at once: its last poll stops the timer
         svc.store.update_run(run_id, status="converged")
         last = panels.poll(1, run_id, state, key, [], None, None)

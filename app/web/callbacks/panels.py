@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import time
 
 from dash import Input, Output, Patch, State, ctx, html, no_update
 
@@ -33,6 +34,12 @@ PANEL_OUTPUTS = (
 #: Poll period (ms) while a run streams, and until its first band (the band
 #: comes a fraction of a second after Fit; a watcher should see it at once).
 POLL_MS, FIRST_POLL_MS = 300, 120
+#: While a run streams, the change-date, rates and weekday panels are redrawn
+#: at most this often (seconds); the main chart and headline follow every
+#: snapshot. Each redraw costs the browser 50-400 ms on a loaded 2-core
+#: machine, and redrawing all of them on every snapshot made the page fall
+#: behind (bench/dashboard.py).
+SECONDARY_SECONDS = 1.0
 
 
 def to_patch(updates):
@@ -223,10 +230,11 @@ def _marks(snapshot):
 def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     """Patch the panels with the run's newest snapshot (no-op when nothing changed).
 
-    The main chart, the change-date chart and the headline follow every
-    snapshot; the rates and weekday panels only when their numbers changed;
-    traces, diagnostics and the residual check only after a new convergence
-    check (they summarise the draws, which change slowly).
+    The main chart and the headline follow every snapshot; the change-date,
+    rates and weekday panels at most every ``SECONDARY_SECONDS`` (the last two
+    only when their numbers changed); traces, diagnostics and the residual
+    check only after a new convergence check (they summarise the draws, which
+    change slowly). The last poll of a run draws everything.
     """
     keep = [no_update] * len(PANEL_OUTPUTS)
     rec, snap = _run_view(run_id)
@@ -262,18 +270,26 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
         out[14] = first
         out[19] = POLL_MS
         return out
-    hist_up = F.changepoint_updates(sd, snap)
-    if hist_up["trace_count"] and hist_up["trace_count"] == counts.get("hist"):
-        out[1] = to_patch(hist_up)
-    else:
-        fig = F.changepoint_figure(sd, snap, highlight_segment=highlight)
-        out[1], counts["hist"] = fig, len(fig.data)
-    if new["segments"] != old.get("segments"):
-        out[2] = F.rates_figure(snap, highlight_segment=highlight)
-    if new["weekday"] != old.get("weekday"):
-        out[6] = F.weekday_figure(snap)
+    now = time.time()
+    secondary_at = state.get("secondary_at")
+    diag_due = new["diag"] != old.get("diag") or new["phase"] != old.get("phase")
+    secondary_due = new["phase"] != old.get("phase") or now - (secondary_at or 0.0) >= SECONDARY_SECONDS
+    if controls[0] or (secondary_due and not diag_due):  # one group of panels per tick while streaming
+        secondary_at = now
+        hist_up = F.changepoint_updates(sd, snap)
+        if hist_up["trace_count"] and hist_up["trace_count"] == counts.get("hist"):
+            out[1] = to_patch(hist_up)
+        else:
+            fig = F.changepoint_figure(sd, snap, highlight_segment=highlight)
+            out[1], counts["hist"] = fig, len(fig.data)
+        if new["segments"] != old.get("segments"):
+            out[2] = F.rates_figure(snap, highlight_segment=highlight)
+        if new["weekday"] != old.get("weekday"):
+            out[6] = F.weekday_figure(snap)
+    else:  # not yet: the marks stay, so the next due poll redraws them
+        new["segments"], new["weekday"] = old.get("segments"), old.get("weekday")
     param = state.get("trace_param")
-    if new["diag"] != old.get("diag") or new["phase"] != old.get("phase"):
+    if diag_due:
         options, param = _trace_choice(snap, trace_param)
         tr_up = F.trace_updates(snap, param)
         if tr_up["trace_count"] and tr_up["trace_count"] == counts.get("trace") and param == state.get("trace_param"):
@@ -297,7 +313,8 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
         out[9] = F.diagnostics_summary(snap)
     else:
         trace_names = state.get("trace_names")
-    out[14] = dict(_state(run_id, snap, counts, param, new), controls=controls, trace_names=trace_names)
+    out[14] = dict(_state(run_id, snap, counts, param, new), controls=controls, trace_names=trace_names,
+                   secondary_at=secondary_at)
     return out
 
 
