@@ -171,27 +171,27 @@ def test_a_runs_first_band_is_sent_alone_and_the_other_panels_follow(app):
         assert first[0] is not no_update and first[10] is not no_update
         assert all(v is no_update for v in first[1:10])
         assert first[14]["banded"] and first[14]["iteration"] is None
-        # then one group of panels per poll: the draws' summaries (a new check) ...
+        # then one group of panels per poll: the change dates, rates and weekday panels ...
         second = panels.poll(2, run_id, first[14], key, [], None, None)
-        assert all(second[i] is not no_update for i in (0, 3, 7, 8)) and second[1] is second[2] is no_update
+        assert all(second[i] is not no_update for i in (0, 1, 2, 6)) and second[3] is second[8] is no_update
         assert second[14]["iteration"] is not None
         snap = svc.store.get_snapshot(run_id)
 
-        def newer(by, flip=True):  # a later snapshot, with other segment numbers when flipped
+        def newer(by):  # a later snapshot, with other segment numbers
             svc.store.put_snapshot(run_id, dict(snap, iteration=snap["iteration"] + by,
-                                                segments=snap["segments"][::-1] if flip else snap["segments"]))
+                                                segments=snap["segments"][::-1]))
 
-        # ... then the change dates, rates and weekday panels
+        # ... then the draws' summaries (traces, residual check, diagnostics)
         newer(3)
         third = panels.poll(3, run_id, second[14], key, [], None, None)
-        assert third[1] is not no_update and third[2] is not no_update and third[3] is no_update
+        assert all(third[i] is not no_update for i in (3, 7, 8)) and third[1] is third[2] is no_update
         # a newer snapshot a moment later moves the main chart only ...
         newer(7)
         fourth = panels.poll(4, run_id, third[14], key, [], None, None)
         assert fourth[0] is not no_update and fourth[1] is fourth[2] is no_update
         # ... and once SECONDARY_SECONDS have passed, the others follow
         later = dict(fourth[14], secondary_at=fourth[14]["secondary_at"] - panels.SECONDARY_SECONDS)
-        newer(9, flip=False)
+        newer(9)
         fifth = panels.poll(5, run_id, later, key, [], None, None)
         assert fifth[1] is not no_update and fifth[2] is not no_update
         # a finished run gets everything at once: its last poll stops the timer
@@ -221,6 +221,51 @@ def test_a_new_run_on_blank_panels_patches_the_main_chart_only(app):
         svc.store.put_snapshot(run_id, _load("snapshot_00_init"))
         over = panels.render(key, [], "bars", "linear", None, run_id, None, full[14])
         assert not isinstance(over[0], Patch)
+
+
+def test_an_empty_panel_is_redrawn_when_its_empty_state_changes(app):
+    # a fit without a weekday effect: the panel goes from "appear once the
+    # first draws arrive" to "not fitted" although the numbers (none) did not change
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        trigger(f"{ids.SERIES_KEY}.data")
+        blank = panels.render(key, [], "bars", "linear", None, None, None)
+        _, run_id, _ = running.fit(1, key, [], 2, "negbin", [], [], 20, None, 0, None, None, 14, 4, 100, 2)
+        trigger(f"{ids.POLL}.n_intervals")
+        out = panels.poll(1, run_id, dict(blank[14], run=run_id, iteration=-1), key, [], None, None)
+        assert out[6] is not no_update
+        assert "not fitted" in out[6].layout.annotations[0].text
+
+
+def test_a_check_on_every_snapshot_does_not_starve_the_other_panels():
+    # past the criterion but short of the requested draws, the engine checks
+    # every few draws: each snapshot then has new diagnostics
+    import time
+
+    now = time.time()
+    old, new = {"diag": 100, "phase": "sampling"}, {"diag": 150, "phase": "sampling"}
+    both_old = {"secondary_at": now - 2.0, "diag_drawn_at": now - 1.5}
+    assert panels._groups_due(both_old, old, new, finished=False) == (True, False)
+    assert panels._groups_due(dict(both_old, secondary_at=now), old, new, finished=False) == (False, True)
+    assert panels._groups_due({"secondary_at": now, "diag_drawn_at": now}, old, new, finished=False) == (False, False)
+    assert panels._groups_due({"secondary_at": now, "diag_drawn_at": now}, old, new, finished=True) == (True, True)
+
+
+def test_the_last_poll_redraws_panels_a_throttled_poll_left_provisional(app):
+    # the worker writes the final snapshot just before the status: a poll can
+    # see "done" while the run still reads "running", skip the throttled
+    # panels, and the next poll (status finished) must still draw them
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        _, run_id, _ = running.fit(1, key, [], 2, "negbin", ["on"], [], 20, None, 0, None, None, 14, 4, 100, 2)
+        final = app.server.config["BENDLINE"].store.get_snapshot(run_id)
+        streaming = dict(final, phase="sampling")
+        seen = {"run": run_id, "iteration": final["iteration"], "phase": "done", "counts": {},
+                "marks": panels._marks(streaming), "banded": True}
+        trigger(f"{ids.POLL}.n_intervals")
+        out = panels.poll(9, run_id, seen, key, [], None, None)
+        assert out[15] is True  # the last poll
+        assert out[1] is not no_update and out[2] is not no_update and out[6] is not no_update
 
 
 def test_to_patch_sets_only_what_changed():

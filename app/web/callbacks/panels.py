@@ -213,15 +213,39 @@ def _start_run(sd, rec, snap, cps, highlight, run_id, trace_param, state):
     return out
 
 
+def _groups_due(state, old, new, *, finished):
+    """(draw the change-date/rates/weekday panels, draw the draws' panels) this poll.
+
+    The draws' panels (traces, residual check, diagnostics) change only at a
+    convergence check, the others with every snapshot. While a run streams,
+    each group is drawn at most every SECONDARY_SECONDS and never both in one
+    poll (the one drawn longer ago goes first); the last poll draws both.
+    """
+    if finished:
+        return True, True
+    now = time.time()
+    phase_changed = new["phase"] != old.get("phase")
+    sec_at, diag_at = state.get("secondary_at") or 0.0, state.get("diag_drawn_at") or 0.0
+    secondary = phase_changed or now - sec_at >= SECONDARY_SECONDS
+    diag = (new["diag"] != old.get("diag") or phase_changed) and (phase_changed or now - diag_at >= SECONDARY_SECONDS)
+    if secondary and diag:
+        return (True, False) if sec_at <= diag_at else (False, True)
+    return secondary, diag
+
+
 def _fingerprint(obj):
     return hashlib.md5(json.dumps(obj, sort_keys=True, default=str).encode()).hexdigest()[:12]
 
 
 def _marks(snapshot):
     """What each secondary panel depends on, so unchanged panels are not redrawn."""
+    snap = snapshot or {}
+    # what the panel shows, including its empty states ("appear once the first
+    # draws arrive" versus "not fitted") and its status badge, not just the numbers
+    shown = [bool(snap.get("band")), F.status_note(snapshot)]
     return {
-        "segments": _fingerprint((snapshot or {}).get("segments")),
-        "weekday": _fingerprint((snapshot or {}).get("weekday")),
+        "segments": _fingerprint([shown, snap.get("segments")]),
+        "weekday": _fingerprint([shown, "weekday" in snap, snap.get("weekday")]),
         "diag": (snapshot or {}).get("diagnostics_at_draw"),
         "phase": (snapshot or {}).get("phase"),
     }
@@ -253,8 +277,12 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     if controls != state.get("controls"):
         out[15:19] = controls
         out[14] = dict(state, controls=controls)
+    # The poll that sees the run finished is its last: it draws everything,
+    # even if it already saw the final snapshot (written just before the
+    # status), since the result's summaries replace the snapshot's.
     if series is None or snap is None or state.get("run") != run_id or (
-            snap.get("iteration") == state.get("iteration") and snap.get("phase") == state.get("phase")):
+            not controls[0] and snap.get("iteration") == state.get("iteration")
+            and snap.get("phase") == state.get("phase")):
         return out
     sd = series.to_dict()
     counts = dict(state.get("counts") or {})
@@ -270,12 +298,10 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
         out[14] = first
         out[19] = POLL_MS
         return out
-    now = time.time()
-    secondary_at = state.get("secondary_at")
-    diag_due = new["diag"] != old.get("diag") or new["phase"] != old.get("phase")
-    secondary_due = new["phase"] != old.get("phase") or now - (secondary_at or 0.0) >= SECONDARY_SECONDS
-    if controls[0] or (secondary_due and not diag_due):  # one group of panels per tick while streaming
-        secondary_at = now
+    draw_secondary, draw_diag = _groups_due(state, old, new, finished=controls[0])
+    secondary_at, diag_drawn_at = state.get("secondary_at"), state.get("diag_drawn_at")
+    if draw_secondary:
+        secondary_at = time.time()
         hist_up = F.changepoint_updates(sd, snap)
         if hist_up["trace_count"] and hist_up["trace_count"] == counts.get("hist"):
             out[1] = to_patch(hist_up)
@@ -286,10 +312,11 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
             out[2] = F.rates_figure(snap, highlight_segment=highlight)
         if new["weekday"] != old.get("weekday"):
             out[6] = F.weekday_figure(snap)
-    else:  # not yet: the marks stay, so the next due poll redraws them
+    else:  # not yet: the marks stay, so a later poll redraws them
         new["segments"], new["weekday"] = old.get("segments"), old.get("weekday")
     param = state.get("trace_param")
-    if diag_due:
+    if draw_diag:
+        diag_drawn_at = time.time()
         options, param = _trace_choice(snap, trace_param)
         tr_up = F.trace_updates(snap, param)
         if tr_up["trace_count"] and tr_up["trace_count"] == counts.get("trace") and param == state.get("trace_param"):
@@ -313,8 +340,9 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
         out[9] = F.diagnostics_summary(snap)
     else:
         trace_names = state.get("trace_names")
+        new["diag"], new["phase"] = old.get("diag"), old.get("phase")
     out[14] = dict(_state(run_id, snap, counts, param, new), controls=controls, trace_names=trace_names,
-                   secondary_at=secondary_at)
+                   secondary_at=secondary_at, diag_drawn_at=diag_drawn_at)
     return out
 
 
