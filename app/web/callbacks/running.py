@@ -46,27 +46,39 @@ def options_from_controls(series, cps, segments, family, weekday, jumps, growth,
     return opts
 
 
-def fit(n_clicks, series_key, cps, segments, family, weekday, jumps, growth, min_seg, drop_last,
-        gi_mean, gi_sd, horizon, chains, draws, seed):
-    """Submit a run; returns (url search, run id, error message)."""
-    if not n_clicks:
-        return no_update, no_update, no_update
+def submit_from_controls(series_key, cps, controls, submit):
+    """Validate the controls' options and submit them; returns (record, None) or (None, message).
+
+    ``controls`` are the option controls' values in the order of
+    :func:`options_from_controls` after ``cps``; ``submit(series, options,
+    owner)`` stores the run(s). Shared by Fit and "How many segments?".
+    """
     svc = services()
     series, _ = get_series(svc.store, series_key)
     if series is None:
-        return no_update, no_update, "Load a series first."
+        return None, "Load a series first."
     user, _ = current_user()
     try:
-        opts = options_from_controls(series, cps or [], segments, family, weekday, jumps, growth, min_seg,
-                                     drop_last, gi_mean, gi_sd, horizon, chains, draws, seed)
-        rec = svc.runs.submit(series, opts, owner=user)
+        opts = options_from_controls(series, cps, *controls)
+        return submit(series, opts, user), None
     except InputError as exc:
         label = LABELS.get(exc.column, exc.column)
-        return no_update, no_update, f"{label}: {exc.detail}" if label else str(exc)
+        return None, f"{label}: {exc.detail}" if label else str(exc)
     except QueueUnavailable as exc:
-        return no_update, no_update, f"The fit queue is unavailable ({exc}); nothing was lost, try again shortly."
+        return None, f"The fit queue is unavailable ({exc}); nothing was lost, try again shortly."
     except PermissionError as exc:
-        return no_update, no_update, str(exc)
+        return None, str(exc)
+
+
+def fit(n_clicks, series_key, cps, *controls):
+    """Submit a run; returns (url search, run id, error message)."""
+    if not n_clicks:
+        return no_update, no_update, no_update
+    runs = services().runs
+    rec, message = submit_from_controls(series_key, cps or [], controls,
+                                        lambda series, opts, user: runs.submit(series, opts, owner=user))
+    if rec is None:
+        return no_update, no_update, message
     return f"?run={rec['id']}", rec["id"], ""
 
 

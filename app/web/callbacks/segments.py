@@ -4,35 +4,25 @@ from __future__ import annotations
 
 from dash import Input, Output, State, dcc, html, no_update
 
-from inference.errors import InputError
-
-from ...runs import QueueUnavailable, SegmentComparison
+from ...runs import SegmentComparison
 from .. import figures as F
 from .. import ids
-from ..context import current_user, get_series, services, store_guarded
-from .running import LABELS, options_from_controls
+from ..context import services, store_guarded
+from .running import submit_from_controls
 
 HIDDEN, SHOWN = {"display": "none"}, {}
 
 
-def start(n_clicks, series_key, cps, segments, family, weekday, jumps, growth, min_seg, drop_last,
-          gi_mean, gi_sd, horizon, chains, draws, seed):
+def start(n_clicks, series_key, _cps, *controls):
     """Start one fit per K with the current options; returns (compare id, poll off, status)."""
     if not n_clicks:
         return no_update, no_update, no_update
-    svc = services()
-    series, _ = get_series(svc.store, series_key)
-    if series is None:
-        return no_update, no_update, "Load a series first."
-    user, _ = current_user()
-    try:
-        opts = options_from_controls(series, [], segments, family, weekday, jumps, growth, min_seg, drop_last,
-                                     gi_mean, gi_sd, horizon, chains, draws, seed)
-        rec = SegmentComparison(svc.runs).start(series, opts, owner=user)
-    except InputError as exc:
-        return no_update, no_update, f"{LABELS.get(exc.column, exc.column)}: {exc.detail}"
-    except QueueUnavailable as exc:
-        return no_update, no_update, f"The fit queue is unavailable ({exc})."
+    comparison = SegmentComparison(services().runs)
+    # tentative change dates fix K, so they are left out here
+    rec, message = submit_from_controls(series_key, [], controls,
+                                        lambda series, opts, user: comparison.start(series, opts, owner=user))
+    if rec is None:
+        return no_update, no_update, message
     n = len(rec["members"])
     return rec["id"], False, f"Fitting {n} segment counts (tentative change dates are not used here)…"
 
