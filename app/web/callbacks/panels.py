@@ -163,7 +163,7 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, state=
     if rec is not None and rec.get("series_hash") != series.content_hash():
         rec, snap = None, None
     if rec is not None and _shows_nothing_yet(state, series_key, run_id, snap):
-        return _start_run(sd, rec, snap, cps, highlight, run_id, trace_param, state)
+        return _start_run(sd, rec, snap, cps, highlight, run_id, state)
     log_y = scale == "log"
     main = F.main_figure(sd, snap, cps or [], log_y=log_y, style=style, highlight_segment=highlight)
     hist = F.changepoint_figure(sd, snap, highlight_segment=highlight)
@@ -198,7 +198,7 @@ def _shows_nothing_yet(state, series_key, run_id, snap):
     return {t["prop_id"] for t in ctx.triggered} == {f"{ids.RUN_ID}.data"}
 
 
-def _start_run(sd, rec, snap, cps, highlight, run_id, trace_param, state):
+def _start_run(sd, rec, snap, cps, highlight, run_id, state):
     """render()'s outputs for a run just started on blank panels (see _shows_nothing_yet)."""
     out = [no_update] * len(PANEL_OUTPUTS)
     out[0] = to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight))
@@ -254,11 +254,13 @@ def _marks(snapshot):
 def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     """Patch the panels with the run's newest snapshot (no-op when nothing changed).
 
-    The main chart and the headline follow every snapshot; the change-date,
-    rates and weekday panels at most every ``SECONDARY_SECONDS`` (the last two
-    only when their numbers changed); traces, diagnostics and the residual
-    check only after a new convergence check (they summarise the draws, which
-    change slowly). The last poll of a run draws everything.
+    The main chart and the headline follow every snapshot. The other panels
+    come in two groups, each drawn at most every ``SECONDARY_SECONDS`` and
+    never both in one poll (:func:`_groups_due`): the change-date, rates and
+    weekday panels (the last two only when what they show changed), and the
+    draws' summaries (traces, diagnostics, residual check) after a new
+    convergence check. A run's first band goes alone; the poll that sees the
+    run finished draws everything.
     """
     keep = [no_update] * len(PANEL_OUTPUTS)
     rec, snap = _run_view(run_id)
