@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import hashlib
 import os
-from urllib.parse import parse_qs
 
 from dash import Input, Output, State, ctx, html, no_update
 
@@ -47,14 +46,6 @@ def defaults_for(series):
     return out
 
 
-def run_from_search(search):
-    """The run id in a ``?run=...`` query string, or None."""
-    if not search:
-        return None
-    values = parse_qs(search.lstrip("?")).get("run")
-    return values[0] if values else None
-
-
 def _read(store, data, label, region=None):
     """Series from file bytes; for a long-format file also the regions and raw key."""
     regions = list_regions(data, name=label)
@@ -69,9 +60,18 @@ def _read(store, data, label, region=None):
     return series, regions, region, raw_key
 
 
-def request_from_url(search):
-    """The address names the run to show (fit, list click, a shared link, a reload)."""
-    return {"run": run_from_search(search)}
+#: The address names the run to show (fit, list click, a shared link, a
+#: reload). In the browser, so that when Fit has just set both the address and
+#: the run id, the chain stops there at once instead of two server round trips
+#: later: the panels' render waits for that chain (it would change their
+#: inputs). The server validates the id before any store lookup.
+REQUEST_FROM_URL = """
+function(search, current) {
+    const run = new URLSearchParams(search || "").get("run");
+    if (run && run === current) { return window.dash_clientside.no_update; }
+    return {"run": run};
+}
+"""
 
 
 def load(contents, sample, region, request, filename, series_key, current_run):
@@ -176,7 +176,8 @@ def register(app):
         State(ids.RUN_ID, "data"),
         prevent_initial_call="initial_duplicate",
     )(store_guarded(load, 8 + len(CONTROL_IDS), {6: lambda t: t}))
-    app.callback(Output(ids.REQUEST_RUN, "data"), Input(ids.URL, "search"))(request_from_url)
+    app.clientside_callback(REQUEST_FROM_URL, Output(ids.REQUEST_RUN, "data"), Input(ids.URL, "search"),
+                            State(ids.RUN_ID, "data"))
     app.callback(
         Output(ids.SERIES_INFO, "children"),
         Output(ids.DATA_NOTES, "children"),
