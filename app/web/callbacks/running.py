@@ -128,12 +128,18 @@ def run_rows(_clicks, n_intervals, run_id, _poll_off=None):
     return items
 
 
+def control_states():
+    """The series, the change dates and the option controls, in the order of
+    :func:`fit` (and of :func:`submit_from_controls`'s ``controls``)."""
+    return [State(ids.SERIES_KEY, "data"), State(ids.CHANGEPOINTS, "data"), State(ids.SEGMENTS, "value"),
+            State(ids.FAMILY, "value"), State(ids.WEEKDAY, "value"), State(ids.JUMPS, "value"),
+            State(ids.GROWTH_PRIOR, "value"), State(ids.MIN_SEGMENT, "value"), State(ids.DROP_LAST, "value"),
+            State(ids.GI_MEAN, "value"), State(ids.GI_SD, "value"), State(ids.HORIZON, "value"),
+            State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value")]
+
+
 def register(app):
-    controls = [State(ids.SERIES_KEY, "data"), State(ids.CHANGEPOINTS, "data"), State(ids.SEGMENTS, "value"),
-                State(ids.FAMILY, "value"), State(ids.WEEKDAY, "value"), State(ids.JUMPS, "value"),
-                State(ids.GROWTH_PRIOR, "value"), State(ids.MIN_SEGMENT, "value"), State(ids.DROP_LAST, "value"),
-                State(ids.GI_MEAN, "value"), State(ids.GI_SD, "value"), State(ids.HORIZON, "value"),
-                State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value")]
+    controls = control_states()
     app.callback(
         Output(ids.URL, "search", allow_duplicate=True),
         Output(ids.RUN_ID, "data", allow_duplicate=True),

@@ -8,7 +8,7 @@ from ...runs import SegmentComparison
 from .. import figures as F
 from .. import ids
 from ..context import services, store_guarded
-from .running import submit_from_controls
+from .running import control_states, submit_from_controls
 
 HIDDEN, SHOWN = {"display": "none"}, {}
 
@@ -67,11 +67,7 @@ def adopt(n_clicks, compare_id, cps):
 
 
 def register(app):
-    controls = [State(ids.SERIES_KEY, "data"), State(ids.CHANGEPOINTS, "data"), State(ids.SEGMENTS, "value"),
-                State(ids.FAMILY, "value"), State(ids.WEEKDAY, "value"), State(ids.JUMPS, "value"),
-                State(ids.GROWTH_PRIOR, "value"), State(ids.MIN_SEGMENT, "value"), State(ids.DROP_LAST, "value"),
-                State(ids.GI_MEAN, "value"), State(ids.GI_SD, "value"), State(ids.HORIZON, "value"),
-                State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value")]
+    controls = control_states()
     app.callback(
         Output(ids.COMPARE_ID, "data"), Output(ids.COMPARE_POLL, "disabled"),
         Output(ids.COMPARE_STATUS, "children"),
