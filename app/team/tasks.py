@@ -32,6 +32,11 @@ def make_celery(redis_url):
         task_ignore_result=True,
         task_acks_late=False,  # a killed worker's run is failed by its heartbeat, not redelivered
         worker_prefetch_multiplier=1,
+        # Fits are long: a worker whose processes are all busy must not hold
+        # the next run back from an idle worker. With early acks, prefetch 1
+        # still let a busy worker reserve one more message (a queued run
+        # waited while another worker sat idle: seen as a flaky fault test).
+        worker_disable_prefetch=True,
         broker_connection_retry_on_startup=True,
         broker_connection_timeout=3,
         # a crashed worker's reserved, unstarted tasks return to the queue after this long
