@@ -10,6 +10,9 @@ from . import ids
 from .downloads import EXPORT_HINT, EXPORT_IDS, EXPORT_ROW, EXPORTS
 from .figures import empty_figure
 
+#: Poll period (ms) of the run panels while a run streams (app.web.callbacks.panels).
+POLL_MS = 300
+
 GRAPH_CONFIG = {
     "displaylogo": False,
     "edits": {"shapePosition": True},
@@ -225,7 +228,7 @@ def page(samples, series_key=None, team_user=None):
         dcc.Store(id=ids.REQUEST_RUN, data=None),
         dcc.Store(id=ids.FIGURE_RUN, data=None),
         dcc.Store(id=ids.HIGHLIGHT, data=None),
-        dcc.Interval(id=ids.POLL, interval=300, disabled=True),
+        dcc.Interval(id=ids.POLL, interval=POLL_MS, disabled=True),
         html.Header(className="header", children=[
             html.Div(className="brand", children=[html.Span("Bendline", className="logo"),
                                                   html.Span("growth, decline and change dates in count series",

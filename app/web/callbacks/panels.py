@@ -21,6 +21,7 @@ from ...store import FINISHED
 from .. import figures as F
 from .. import ids
 from ..context import current_user, get_series, services, store_guarded
+from ..layout import POLL_MS
 
 PANEL_OUTPUTS = (
     (ids.MAIN, "figure"), (ids.CHANGE_HIST, "figure"), (ids.RATES, "figure"), (ids.TRACE, "figure"),
@@ -31,9 +32,9 @@ PANEL_OUTPUTS = (
     (ids.STOP, "disabled"), (ids.BRIEF_LINK, "href"), (ids.BRIEF_LINK, "className"), (ids.POLL, "interval"),
 )
 
-#: Poll period (ms) while a run streams, and until its first band (the band
-#: comes a fraction of a second after Fit; a watcher should see it at once).
-POLL_MS, FIRST_POLL_MS = 300, 120
+#: Poll period (ms) until a run's first band (the band comes a fraction of a
+#: second after Fit; a watcher should see it at once); then the layout's POLL_MS.
+FIRST_POLL_MS = 120
 #: While a run streams, the change-date, rates and weekday panels are redrawn
 #: at most this often (seconds); the main chart and headline follow every
 #: snapshot. Each redraw costs the browser 50-400 ms on a loaded 2-core
