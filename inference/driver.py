@@ -230,14 +230,19 @@ def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time
             block_lp.clear()
 
     while status is None:
-        u = 1.0 - rng.random()
-        n_steps = int(min(MAX_LEAPFROG, max(1, math.ceil(u * T / eps))))
-        state, info = step(rng, state, target, Params(eps, n_steps, chol))
-        progress.record(info, n_steps, sampling=True)
+        stop_now = False
+        for _ in range(settings.thin):  # keep every thin-th iteration
+            u = 1.0 - rng.random()
+            n_steps = int(min(MAX_LEAPFROG, max(1, math.ceil(u * T / eps))))
+            state, info = step(rng, state, target, Params(eps, n_steps, chol))
+            progress.record(info, n_steps, sampling=True)
+            if should_stop():
+                stop_now = True
+                break
         block_pos.append(state.position)
         block_lp.append(state.log_density)
         n_draws += 1
-        if should_stop():
+        if stop_now:
             status = "stopped"
         elif n_draws >= max_draws:
             status = "unconverged"

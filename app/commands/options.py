@@ -42,6 +42,10 @@ def add_model_arguments(p):
     p.add_argument("--chains", type=int, default=8, metavar="C", help="chains (default 8)")
     p.add_argument("--draws", type=int, default=250, metavar="D",
                    help="draws per chain, at least (default 250; sampling goes on until converged)")
+    p.add_argument("--max-draws", type=int, metavar="D",
+                   help="stop at this many draws per chain even if not converged (default: 20 x draws, at least 4000)")
+    p.add_argument("--thin", type=int, default=1, metavar="K",
+                   help="keep every K-th draw (default 1: keep all)")
     p.add_argument("--seed", type=int, default=1, metavar="S", help="random seed (default 1)")
     p.add_argument("--max-seconds", type=float, default=600.0, metavar="SEC",
                    help="time budget for one fit (default 600)")
@@ -64,8 +68,11 @@ def options_from_args(args, series):
         "chains": args.chains,
         "draws": args.draws,
         "seed": args.seed,
+        "thin": args.thin,
         "max_seconds": args.max_seconds,
     }
+    if args.max_draws is not None:
+        opts["max_draws"] = args.max_draws
     if args.min_segment_days is not None:
         opts["min_segment_days"] = args.min_segment_days
     if args.completeness:

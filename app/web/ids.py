@@ -47,6 +47,7 @@ HORIZON = "horizon"
 CHAINS = "chains"
 DRAWS = "draws"
 SEED = "seed"
+THIN = "thin"
 
 # running
 FIT = "fit-button"

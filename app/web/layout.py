@@ -107,6 +107,7 @@ def model_section():
             _field("Chains", _number(ids.CHAINS, 8, min_=2, max_=64, step=1, width="4.5em")),
             _field("Draws per chain (at least)", _number(ids.DRAWS, 250, min_=50, max_=100000, step=50)),
             _field("Seed", _number(ids.SEED, 1, min_=0, step=1, width="5em")),
+            _field("Keep every k-th draw", _number(ids.THIN, 1, min_=1, max_=10000, step=1, width="5em")),
         ]),
     ])
 

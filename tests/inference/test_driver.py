@@ -55,6 +55,19 @@ def test_same_seed_gives_the_same_draws_whatever_the_snapshot_rate(small_series)
     assert not np.array_equal(sc.read()[0][:, :10], pa[:, :10])
 
 
+def test_thinning_keeps_every_kth_iteration_of_the_same_chain(small_series):
+    # The same seed walks the same chain; thin=3 keeps iterations 3, 6, 9, ...
+    # of the unthinned run, and does three times the work per kept draw.
+    calls = itertools.count()
+    full = RunSettings(chains=4, draws=30, max_draws=30, seed=7, snapshot_every=10, warmup=40)
+    thin = RunSettings(chains=4, draws=10, max_draws=10, seed=7, snapshot_every=10, warmup=40, thin=3)
+    _, s_full = _drain(small_series, full)
+    snaps, s_thin = _drain(small_series, thin, should_stop=lambda: next(calls) < 0)
+    np.testing.assert_array_equal(s_thin.read()[0], s_full.read()[0][:, 2::3])
+    assert next(calls) == 40 + 30  # one stop check per iteration: warm-up, then 3 per kept draw
+    assert snaps[-1]["draws_per_chain"] == 10
+
+
 def test_stop_request_ends_the_run_and_keeps_the_draws(small_series):
     calls = itertools.count()
     settings = RunSettings(chains=4, draws=500, seed=3, snapshot_every=10, warmup=40)

@@ -15,7 +15,8 @@ from ..context import decode_upload, get_series, put_series, services, store_gua
 
 # outputs of load(), in order
 CONTROL_IDS = (ids.FAMILY, ids.WEEKDAY, ids.JUMPS, ids.GROWTH_PRIOR, ids.MIN_SEGMENT, ids.DROP_LAST,
-               ids.GI_MEAN, ids.GI_SD, ids.HORIZON, ids.CHAINS, ids.DRAWS, ids.SEED, ids.SEGMENTS)
+               ids.GI_MEAN, ids.GI_SD, ids.HORIZON, ids.CHAINS, ids.DRAWS, ids.SEED, ids.SEGMENTS,
+               ids.THIN)
 
 
 def controls_from_options(options, interval_days):
@@ -35,6 +36,7 @@ def controls_from_options(options, interval_days):
         o.get("draws", 250),
         o.get("seed", 1),
         o.get("segments", 3),
+        o.get("thin", 1),
     ]
 
 

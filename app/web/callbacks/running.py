@@ -16,11 +16,12 @@ LABELS = {
     "growth_rate_prior_pct_per_day": "Growth-rate prior", "min_segment_days": "Minimum segment length",
     "gi_mean": "Generation interval mean", "gi_sd": "Generation interval sd", "horizon": "Projection horizon",
     "chains": "Chains", "draws": "Draws per chain", "seed": "Seed", "changepoint_priors": "Change dates",
+    "thin": "Keep every k-th draw",
 }
 
 
 def options_from_controls(series, cps, segments, family, weekday, jumps, growth, min_seg, drop_last,
-                          gi_mean, gi_sd, horizon, chains, draws, seed):
+                          gi_mean, gi_sd, horizon, chains, draws, seed, thin=1):
     """The fit options the controls describe (validated later by the engine)."""
     opts = {
         "segments": len(cps) + 1 if cps else segments,
@@ -33,6 +34,7 @@ def options_from_controls(series, cps, segments, family, weekday, jumps, growth,
         "chains": chains,
         "draws": draws,
         "seed": seed if seed is not None else 1,
+        "thin": thin if thin not in (None, "") else 1,
     }
     if min_seg not in (None, ""):
         opts["min_segment_days"] = min_seg
@@ -135,7 +137,8 @@ def control_states():
             State(ids.FAMILY, "value"), State(ids.WEEKDAY, "value"), State(ids.JUMPS, "value"),
             State(ids.GROWTH_PRIOR, "value"), State(ids.MIN_SEGMENT, "value"), State(ids.DROP_LAST, "value"),
             State(ids.GI_MEAN, "value"), State(ids.GI_SD, "value"), State(ids.HORIZON, "value"),
-            State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value")]
+            State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value"),
+            State(ids.THIN, "value")]
 
 
 def register(app):

@@ -117,3 +117,17 @@ def graph_data(page, selector="#main-chart"):
         " nonnull: (t.y || []).filter(v => v !== null).length})) : null; }",
         selector,
     )
+
+
+def hold_fit_open(page):
+    """Set the controls so the next Fit keeps sampling until the test stops it.
+
+    100,000 kept draws per chain, each the last of 100 iterations (ten
+    million iterations per chain): far more work than any test waits for on
+    any machine of this kind, while a draw is still kept every few tenths of
+    a second, so a stop leaves draws to show. The test stops the run itself.
+    """
+    page.fill("#draws", "100000")
+    page.press("#draws", "Enter")
+    page.fill("#thin", "100")
+    page.press("#thin", "Enter")

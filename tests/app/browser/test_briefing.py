@@ -14,7 +14,7 @@ from app import wording
 from app.reports import TABLES
 from inference.result import CAUTIONS
 
-from .conftest import Server, wait_for_graph
+from .conftest import Server, hold_fit_open, wait_for_graph
 
 pytestmark = [pytest.mark.browser, pytest.mark.slow]
 SIZES = ((1920, 1080), (1280, 800))
@@ -55,14 +55,16 @@ def text_of(pg, selector):
     return loc.first.text_content() if loc.count() else ""
 
 
-def start_fit(page, server, draws=None):
-    """Fit the demo series from the dashboard; returns the run id."""
+def start_fit(page, server, hold_open=False):
+    """Fit the demo series from the dashboard; returns the run id.
+
+    ``hold_open`` keeps the fit sampling until the test stops it.
+    """
     page.goto(server.url)
     wait_for_graph(page)
     wait_for(lambda: "273 days" in page.inner_text("#series-info"), "the demo series loading")
-    if draws:
-        page.fill("#draws", str(draws))
-        page.press("#draws", "Enter")
+    if hold_open:
+        hold_fit_open(page)
     page.click("#fit-button")
     m = wait_for(lambda: re.search(r"run=([0-9a-f]{16})", page.evaluate("location.search")),
                  lambda: f"the run starting (progress {page.inner_text('#progress')!r}, "
@@ -193,7 +195,7 @@ def test_briefing_view_of_a_finished_fit_and_its_exports(demo, page, browser, tm
 
 
 def test_briefing_view_of_a_running_fit_is_provisional_and_follows_it(demo, page, tmp_path):
-    run_id = start_fit(page, demo, draws=60000)  # still sampling while we look
+    run_id = start_fit(page, demo, hold_open=True)  # still sampling while we look
     wait_for(lambda: re.search(r"Warm-up|Sampling|Finding", page.inner_text("#progress")), "the fit running", 90)
     assert "disabled" in page.get_attribute("#export-report", "class")
     assert get(page, demo, run_id, "report.html").status == 409
