@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .conditional import design, linear_index
 from .hmc import safe_cholesky
 
 
@@ -73,40 +74,24 @@ def least_squares_starts(model, knots, chunk=32):
             for i in range(0, knots.shape[0], chunk)
         ])
     S = knots.shape[0]
-    K = model.K
     idx = model.obs_index
-    t = model.t[idx] + 0.5  # interval midpoints
     y = model.y_obs
     target = np.log(y + 0.5) - model.log_completeness[idx]
     w = np.sqrt(y + 0.5)  # sd of log(y) is about 1/sqrt(y) for Poisson counts
-    n_extra = (K - 1 if model.jumps else 0) + (6 if model.weekday else 0)
-    P = K + 1 + n_extra
-    X = np.zeros((S, idx.size, P))
-    edges = np.concatenate([np.zeros((S, 1)), knots, np.full((S, 1), model.t_end)], axis=1)
-    for s in range(S):
-        for j in range(K + 1):
-            e = np.zeros(K + 1)
-            e[j] = 1.0
-            X[s, :, j] = np.interp(t, edges[s], e)
-    col = K + 1
-    if model.jumps:
-        for j in range(K - 1):
-            X[:, :, col] = np.clip(t[None, :] + 0.5 - knots[:, j : j + 1], 0.0, 1.0)
-            col += 1
+    X = design(model, knots)  # levels and jumps, exact interval means
+    P_lin = X.shape[2]
     if model.weekday:
         dow = model.dow[idx]
-        for d in range(6):
-            X[:, :, col] = (dow == d).astype(float) - (dow == 6).astype(float)
-            col += 1
+        wd = np.stack([(dow == d).astype(float) - (dow == 6).astype(float) for d in range(6)], axis=1)
+        X = np.concatenate([X, np.broadcast_to(wd, (S, idx.size, 6))], axis=2)
+    P = X.shape[2]
     Xw = X * w[None, :, None]
     A = np.einsum("snp,snq->spq", Xw, Xw) + 1e-6 * np.eye(P)
     b = np.einsum("snp,n->sp", Xw, target * w)
     coef = np.linalg.solve(A, b[:, :, None])[:, :, 0]
-    levels = coef[:, : K + 1]
-    jumps = coef[:, K + 1 : 2 * K] if model.jumps else None
     weekday = None
     if model.weekday:
-        w6 = coef[:, P - 6 :]
+        w6 = coef[:, P_lin:]
         weekday = np.concatenate([w6, -w6.sum(axis=1, keepdims=True)], axis=1)
     dispersion = None
     if model.negbin:
@@ -115,7 +100,10 @@ def least_squares_starts(model, knots, chunk=32):
         # method of moments: var = mu + mu^2 / phi
         excess = ((y - mu) ** 2 - mu).sum(axis=1) / np.maximum((mu**2).sum(axis=1), 1e-12)
         dispersion = 1.0 / np.clip(excess, 1e-4, 10.0)
-    return model.unconstrain(knots, levels, jumps=jumps, weekday=weekday, dispersion=dispersion)
+    n_levels = model.K if model.flat else model.K + 1
+    theta = model.unconstrain(knots, np.zeros((S, n_levels)), weekday=weekday, dispersion=dispersion)
+    theta[:, linear_index(model)] = coef[:, :P_lin]
+    return theta
 
 
 def adam_polish(model, theta, iterations=150, lr=0.05):

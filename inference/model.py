@@ -29,8 +29,10 @@ The sampler sees a flat unconstrained vector ``theta`` of dimension ``dim``:
     ``S = (n - 1) - K m``; ``tau_j = gap_1 + ... + gap_j``. A uniform prior on
     ordered knots is a Dirichlet(1, ..., 1) on the gap fractions, whose density
     in ``z`` is ``prod_k p_k`` (the additive-logistic Jacobian).
-``eta`` (K+1)
-    Log levels.
+``trend`` (K+1)
+    Log levels ``eta_0 .. eta_K`` at 0, the knots and n. With flat segments
+    (option) instead the log level of each segment (K); the rates are zero
+    and the level jumps by the difference at each knot.
 ``jump`` (K-1, option), ``weekday`` (6, option; the seventh is minus their sum),
 ``log_c`` (1, negative binomial; ``c = 1 / sqrt(phi)``).
 
@@ -38,7 +40,8 @@ Priors (all independent, stated in the analyst's coordinates):
 knots uniform or Normal(centre, spread) truncated to the feasible set;
 ``eta_0 ~ Normal(log(mean of the first counts + 0.5), level_prior_sd^2)``;
 each rate ``r_j ~ Normal(0, s^2)``, which in level coordinates carries the
-Jacobian ``prod_j 1 / gap_j``; jumps ``Normal(0, jump_prior_sd^2)``; day-of-week
+Jacobian ``prod_j 1 / gap_j``; jumps ``Normal(0, jump_prior_sd^2)`` (with
+flat segments, the differences of neighbouring levels); day-of-week
 effects ``Normal(0, weekday_prior_sd^2)`` on all seven; ``c ~ HalfNormal``.
 
 Every function takes ``theta`` of shape (B, dim) and works on all B rows in one
@@ -53,6 +56,7 @@ import math
 import numpy as np
 from scipy import special
 
+from .defaults import resolve
 from .errors import InputError
 from .fastmath import psi_minus_log
 from .model_outputs import _LOG_C_FLOOR, TrendOutputs
@@ -69,7 +73,8 @@ class TrendModel(TrendOutputs):
     ----------
     series : Series
     spec : ModelSpec
-        Resolved against the series' interval on construction.
+        Resolved against the series on construction (:func:`inference.defaults.resolve`);
+        what was chosen is in ``defaults_chosen``.
 
     Raises
     ------
@@ -79,7 +84,7 @@ class TrendModel(TrendOutputs):
     """
 
     def __init__(self, series: Series, spec: ModelSpec):
-        spec = spec.resolved(series.interval_days)
+        spec, self.defaults_chosen = resolve(spec, series)
         self.series = series
         self.spec = spec
         self.interval_days = series.interval_days
@@ -114,8 +119,8 @@ class TrendModel(TrendOutputs):
         n_obs = int(observed.sum())
         if n_obs < 2 * K + 2:
             raise InputError(
-                f"only {n_obs} observed values enter the fit; {K} segments need at least "
-                f"{2 * K + 2}",
+                f"only {n_obs} observed values enter the fit, too few for {K} segments "
+                f"(they need at least {2 * K + 2})",
                 column="segments",
                 value=K,
             )
@@ -138,7 +143,8 @@ class TrendModel(TrendOutputs):
             onehot = np.zeros((n, 7))
             onehot[np.arange(n), self.dow] = 1.0
             self._dow_onehot = onehot * observed[:, None]
-        self.jumps = bool(spec.jumps) and K > 1
+        self.flat = bool(spec.flat_segments)
+        self.jumps = bool(spec.jumps) and K > 1 and not self.flat
         self.negbin = spec.family == "negbin"
 
         # priors in model units (intervals)
@@ -160,7 +166,7 @@ class TrendModel(TrendOutputs):
             self.knot_sd = None
 
         # layout of theta
-        sizes = [("z", K - 1), ("eta", K + 1)]
+        sizes = [("z", K - 1), ("trend", K if self.flat else K + 1)]
         if self.jumps:
             sizes.append(("jump", K - 1))
         if self.weekday:
@@ -179,7 +185,10 @@ class TrendModel(TrendOutputs):
     def param_names(self):
         """Names of the unconstrained coordinates, in order."""
         names = [f"knot_logit[{j + 1}]" for j in range(self.K - 1)]
-        names += [f"log_level[{j}]" for j in range(self.K + 1)]
+        if self.flat:
+            names += [f"segment_log_level[{j + 1}]" for j in range(self.K)]
+        else:
+            names += [f"log_level[{j}]" for j in range(self.K + 1)]
         if self.jumps:
             names += [f"jump[{j + 1}]" for j in range(self.K - 1)]
         if self.weekday:
@@ -188,8 +197,8 @@ class TrendModel(TrendOutputs):
             names += ["log_inv_sqrt_dispersion"]
         return names
 
-    def _knots(self, theta):
-        """Gap fractions p (B, K), gaps (B, K) and interior knots tau (B, K-1)."""
+    def knot_layout(self, theta):
+        """Gap fractions p (B, K), gaps (B, K) and interior knots tau (B, K-1), in intervals."""
         B = theta.shape[0]
         z = theta[:, self.slices["z"]]
         zz = np.concatenate([z, np.zeros((B, 1))], axis=1)
@@ -200,7 +209,26 @@ class TrendModel(TrendOutputs):
         tau = np.cumsum(gaps, axis=1)[:, :-1]
         return p, gaps, tau
 
-    def _weekday7(self, theta):
+    def _levels(self, theta, gaps):
+        """Log levels at 0, the knots and n (B, K+1), rates per interval (B, K), jumps or None.
+
+        The levels are those of the continuous part of the trend (without the
+        jumps). With flat segments the sampler's coordinates are one level
+        per segment; the trend then has rate zero everywhere and jumps by the
+        difference of neighbouring levels at each knot (the level just before
+        knot j is segment j's).
+        """
+        c = theta[:, self.slices["trend"]]
+        if self.flat:
+            eta = np.concatenate([c[:, :1], c], axis=1)
+            jumps = np.diff(c, axis=1) if self.K > 1 else None
+            return eta, np.zeros_like(gaps), jumps
+        r = np.diff(c, axis=1) / gaps
+        jumps = theta[:, self.slices["jump"]] if self.jumps else None
+        return c, r, jumps
+
+    def weekday7(self, theta):
+        """Day-of-week log-effects (B, 7), Monday..Sunday, summing to zero."""
         w = theta[:, self.slices["weekday"]]
         return np.concatenate([w, -w.sum(axis=1, keepdims=True)], axis=1)
 
@@ -311,16 +339,14 @@ class TrendModel(TrendOutputs):
     # -- the three stages: forward pass, likelihood terms, chain rule
     def _forward(self, theta, dtype, pieces):
         """Trend, mean and (optionally) the per-knot pieces the gradient needs."""
-        p, gaps, tau = self._knots(theta)
-        eta = theta[:, self.slices["eta"]]
-        r = np.diff(eta, axis=1) / gaps
+        p, gaps, tau = self.knot_layout(theta)
+        eta, r, jumps = self._levels(theta, gaps)
         beta = np.diff(r, axis=1)
-        jumps = theta[:, self.slices["jump"]] if self.jumps else None
         parts = {} if pieces else None
         logmu = self._interval_log_trend(eta[:, 0], r[:, 0], beta, tau, jumps, self.t.astype(dtype), parts)
         w7 = None
         if self.weekday:
-            w7 = self._weekday7(theta)
+            w7 = self.weekday7(theta)
             logmu += w7.astype(dtype)[:, self.dow]
         logmu += self.log_completeness.astype(dtype)
         mu = np.exp(logmu)
@@ -403,6 +429,8 @@ class TrendModel(TrendOutputs):
         G = np.zeros((B, self.dim))
         tau, r, beta, jumps, gaps, p = fw.tau, fw.r, fw.beta, fw.jumps, fw.gaps, fw.p
         d_eta0 = g.sum(axis=1, dtype=np.float64)
+        if self.flat:
+            return self._gradient_flat(theta, fw, g, d_logc_lik, G, d_eta0)
         d_r = -r / self.rate_sd**2
         d_r[:, 0] += g @ (self.t + 0.5).astype(g.dtype)
         if K > 1:
@@ -423,33 +451,65 @@ class TrendModel(TrendOutputs):
         q = d_r / gaps
         d_eta[:, 1:] += q
         d_eta[:, :-1] -= q
-        G[:, self.slices["eta"]] = d_eta
+        G[:, self.slices["trend"]] = d_eta
         if K > 1:
-            d_gap = -q * r - 1.0 / gaps
-            # tau_j = gap_1 + ... + gap_j for j = 1..K-1
-            d_gap[:, :-1] += np.cumsum(d_tau[:, ::-1], axis=1)[:, ::-1]
-            d_p = self.slack * d_gap
-            d_z = p[:, :-1] * (d_p[:, :-1] - (p * d_p).sum(axis=1, keepdims=True))
-            d_z += 1.0 - K * p[:, :-1]
-            G[:, self.slices["z"]] = d_z
+            # r_j = (eta_j - eta_{j-1}) / gap_j, and the rate prior's Jacobian -sum log gap
+            self._knot_chain_rule(G, fw, d_tau, -q * r - 1.0 / gaps)
+        self._nuisance_gradient(G, fw, g, d_logc_lik)
+        return G
+
+    def _gradient_flat(self, theta, fw, g, d_logc_lik, G, d_level0):
+        """:meth:`_gradient` for flat segments: levels per segment, jumps between them."""
+        K = self.K
+        L = theta[:, self.slices["trend"]]
+        d_L = np.zeros_like(L)
+        d_L[:, 0] = d_level0 - (L[:, 0] - self.level_centre) / self.level_sd**2
+        if K > 1:
+            gcol = g[:, :, None]
+            S = np.matmul(fw.ramp, gcol)[:, :, 0].astype(np.float64)  # d/d jump_j
+            g_in = np.matmul(fw.inside.astype(g.dtype), gcol)[:, :, 0].astype(np.float64)
+            d_J = S - fw.jumps / self.jump_sd**2
+            d_L[:, 1:] += d_J
+            d_L[:, :-1] -= d_J
+            d_tau = -fw.jumps * g_in
+            if self.knot_centre is not None:
+                d_tau -= (fw.tau - self.knot_centre) / self.knot_sd**2
+            self._knot_chain_rule(G, fw, d_tau, np.zeros_like(fw.gaps))
+        G[:, self.slices["trend"]] = d_L
+        self._nuisance_gradient(G, fw, g, d_logc_lik)
+        return G
+
+    def _knot_chain_rule(self, G, fw, d_tau, d_gap):
+        """Gradient in the knot logits z from d/d tau and a direct d/d gap term."""
+        K, p = self.K, fw.p
+        # tau_j = gap_1 + ... + gap_j for j = 1..K-1
+        d_gap = d_gap.copy()
+        d_gap[:, :-1] += np.cumsum(d_tau[:, ::-1], axis=1)[:, ::-1]
+        d_p = self.slack * d_gap
+        d_z = p[:, :-1] * (d_p[:, :-1] - (p * d_p).sum(axis=1, keepdims=True))
+        d_z += 1.0 - K * p[:, :-1]  # the uniform prior's Jacobian, sum of log p
+        G[:, self.slices["z"]] = d_z
+
+    def _nuisance_gradient(self, G, fw, g, d_logc_lik):
+        """Day-of-week and dispersion parts of the gradient."""
         if self.weekday:
             d_w7 = g @ self._dow_onehot.astype(g.dtype) - fw.w7 / self.weekday_sd**2
             G[:, self.slices["weekday"]] = d_w7[:, :6] - d_w7[:, 6:7]
         if self.negbin:
             c = np.exp(fw.log_c)
             G[:, self.slices["log_c"]] = (d_logc_lik + 1.0 - (c / self.c_scale) ** 2)[:, None]
-        return G
 
     def _log_prior(self, theta, p, gaps, tau, eta, r, jumps):
         lp = np.log(p).sum(axis=1)  # uniform ordered knots (Jacobian of z -> p)
         if self.knot_centre is not None:
             lp -= 0.5 * (((tau - self.knot_centre) / self.knot_sd) ** 2).sum(axis=1)
         lp -= 0.5 * ((eta[:, 0] - self.level_centre) / self.level_sd) ** 2
-        lp -= 0.5 * ((r / self.rate_sd) ** 2).sum(axis=1) + np.log(gaps).sum(axis=1)
+        if not self.flat:  # rates are zero in the flat model, with no prior
+            lp -= 0.5 * ((r / self.rate_sd) ** 2).sum(axis=1) + np.log(gaps).sum(axis=1)
         if jumps is not None:
             lp -= 0.5 * ((jumps / self.jump_sd) ** 2).sum(axis=1)
         if self.weekday:
-            lp -= 0.5 * ((self._weekday7(theta) / self.weekday_sd) ** 2).sum(axis=1)
+            lp -= 0.5 * ((self.weekday7(theta) / self.weekday_sd) ** 2).sum(axis=1)
         if self.negbin:
             log_c = theta[:, self.slices["log_c"]][:, 0]
             lp += log_c - 0.5 * (np.exp(log_c) / self.c_scale) ** 2

@@ -4,7 +4,7 @@ likelihoods and predictive draws.
 
 :class:`TrendOutputs` is mixed into :class:`inference.model.TrendModel`,
 which provides the layout (``slices``, ``K``, ``interval_days``, ...) and the
-pieces ``_knots``, ``_weekday7`` and ``_interval_log_trend``.
+pieces ``knot_layout``, ``weekday7``, ``_levels`` and ``_interval_log_trend``.
 """
 
 from __future__ import annotations
@@ -33,15 +33,16 @@ class TrendOutputs:
         -------
         dict of numpy.ndarray
             ``knots`` (B, K-1) in intervals from the start; ``knot_days``
-            (B, K-1); ``log_levels`` (B, K+1); ``rates`` (B, K) per interval;
+            (B, K-1); ``log_levels`` (B, K+1) at 0, the knots (just before
+            any jump) and n; ``rates`` (B, K) per interval;
             ``growth_rate_per_day`` (B, K); ``jumps`` (B, K-1) or absent;
+            ``segment_log_levels`` (B, K) with flat segments;
             ``weekday`` (B, 7) log-effects Monday..Sunday or absent;
             ``dispersion`` (B,) phi, or absent for Poisson.
         """
         theta = np.atleast_2d(np.asarray(theta, dtype=float))
-        p, gaps, tau = self._knots(theta)
-        eta = theta[:, self.slices["eta"]]
-        r = np.diff(eta, axis=1) / gaps
+        p, gaps, tau = self.knot_layout(theta)
+        eta, r, jumps = self._levels(theta, gaps)
         out = {
             "knots": tau,
             "knot_days": tau * self.interval_days,
@@ -49,10 +50,12 @@ class TrendOutputs:
             "rates": r,
             "growth_rate_per_day": r / self.interval_days,
         }
-        if self.jumps:
-            out["jumps"] = theta[:, self.slices["jump"]]
+        if self.flat:
+            out["segment_log_levels"] = theta[:, self.slices["trend"]]
+        if jumps is not None:
+            out["jumps"] = jumps
         if self.weekday:
-            out["weekday"] = self._weekday7(theta)
+            out["weekday"] = self.weekday7(theta)
         if self.negbin:
             log_c = theta[:, self.slices["log_c"]][:, 0]
             out["dispersion"] = np.exp(-2.0 * np.maximum(log_c, _LOG_C_FLOOR))
@@ -75,10 +78,8 @@ class TrendOutputs:
         """
         theta = np.atleast_2d(np.asarray(theta, dtype=float))
         t = self.t if t is None else np.asarray(t, dtype=float)
-        _, gaps, tau = self._knots(theta)
-        eta = theta[:, self.slices["eta"]]
-        r = np.diff(eta, axis=1) / gaps
-        jumps = theta[:, self.slices["jump"]] if self.jumps else None
+        _, gaps, tau = self.knot_layout(theta)
+        eta, r, jumps = self._levels(theta, gaps)
         return self._interval_log_trend(eta[:, 0], r[:, 0], np.diff(r, axis=1), tau, jumps, t)
 
     def day_of_week_at(self, t):
@@ -101,7 +102,7 @@ class TrendOutputs:
         t = np.arange(self.n) if t is None else np.asarray(t)
         out = self.log_trend(theta, t)
         if self.weekday:
-            out = out + self._weekday7(theta)[:, self.day_of_week_at(t)]
+            out = out + self.weekday7(theta)[:, self.day_of_week_at(t)]
         if completeness:
             inside = (t >= 0) & (t < self.n)
             off = np.zeros(t.shape)
@@ -154,7 +155,8 @@ class TrendOutputs:
         ----------
         knots : array_like, shape (B, K-1)
             Interior knots in intervals, feasible (ordered, min gap).
-        log_levels : array_like, shape (B, K+1)
+        log_levels : array_like, shape (B, K+1), or (B, K) with flat segments
+            (one level per segment)
         jumps : array_like, shape (B, K-1), optional
         weekday : array_like, shape (B, 7), optional
             Log-effects; centred to sum to zero.
@@ -175,7 +177,7 @@ class TrendOutputs:
             if np.any(p <= 0):
                 raise ValueError("knots violate the minimum segment length")
             theta[:, self.slices["z"]] = np.log(p[:, :-1]) - np.log(p[:, -1:])
-        theta[:, self.slices["eta"]] = log_levels
+        theta[:, self.slices["trend"]] = log_levels
         if self.jumps:
             theta[:, self.slices["jump"]] = 0.0 if jumps is None else np.asarray(jumps).reshape(B, -1)
         if self.weekday:

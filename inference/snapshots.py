@@ -41,6 +41,9 @@ class Progress:
         self.dropped = []
         self.restarted = 0
         self.mode_lp = None
+        self.relocations = 0
+        self.relocated = 0
+        self.relocation_slots = 0
         self.gi = None
         if settings.gi_mean_days is not None:
             self.gi = (settings.gi_mean_days, settings.gi_sd_days)
@@ -51,6 +54,17 @@ class Progress:
         self.accept_n += 1
         if sampling:
             self.divergent += int(info.divergent.sum())
+
+    def record_relocation(self, info):
+        """Count a change-date relocation and how many knots moved far.
+
+        A knot counts as relocated when it moved more than a tenth of the
+        series, the distance HMC's local steps rarely cover in one go.
+        """
+        self.relocations += 1
+        far = info.moved_days > 0.1 * self.model.n * self.model.interval_days
+        self.relocated += int(far.sum())
+        self.relocation_slots += int(far.size)
 
     def set_chains(self, kept, dropped, restarted):
         self.chains = kept
@@ -95,6 +109,9 @@ class Progress:
                 "gradient_evaluations": int(self.n_grad),
                 "chains_dropped": list(self.dropped),
                 "chains_restarted_in_warmup": int(self.restarted),
+                "relocation_moves": int(self.relocations),
+                "far_relocation_rate": _num(self.relocated / self.relocation_slots)
+                if self.relocation_slots else None,
             },
             "diagnostics": diagnostics,
             "diagnostics_at_draw": diagnostics_at if diagnostics is not None else None,

@@ -48,21 +48,28 @@ class ModelSpec:
         Observation model. Negative binomial has variance ``mu + mu**2 / phi``.
     weekday : bool or None
         Multiplicative day-of-week reporting effect. None means "on for daily
-        series, off for weekly"; it is resolved against the series by
-        :meth:`resolved`.
+        series, off for weekly" (:func:`inference.defaults.resolve`).
     jumps : bool
         Allow a jump in level at each change date.
+    flat_segments : bool
+        Level shifts only: each segment is flat (no growth) and the level
+        jumps at each change date, the step model of an interrupted time
+        series (a change of case definition, testing policy or law). Implies
+        the jumps; the growth-rate prior does not apply.
     drop_last : int
         Leave the last L intervals out of the likelihood (incomplete reports).
     completeness : tuple of float
         Alternatively, the fraction of the final count already reported, for
         the last value first, then the one before, ...; each in (0, 1].
     min_segment_days : float or None
-        Minimum segment length in days; None means 14 days for daily series,
-        28 days for weekly.
-    growth_rate_prior_pct_per_day : float
+        Minimum segment length in days; None chooses it for the series (14
+        days for daily series, 28 for weekly, shorter when the series is too
+        short for the segments asked: :mod:`inference.defaults`).
+    growth_rate_prior_pct_per_day : float or None
         Growth rates rarely exceed this many percent per day: the prior on each
         segment's rate is Normal(0, s^2) with ``1.96 s = ln(1 + pct/100)``.
+        None chooses it for the series (20, wider for a series that rises or
+        falls faster: :mod:`inference.defaults`).
     changepoint_priors : tuple of ChangepointPrior
         Empty for a uniform prior over ordered change dates, else one entry per
         change date (K - 1), in date order.
@@ -84,10 +91,11 @@ class ModelSpec:
     family: str = "negbin"
     weekday: bool | None = None
     jumps: bool = False
+    flat_segments: bool = False
     drop_last: int = 0
     completeness: tuple = ()
     min_segment_days: float | None = None
-    growth_rate_prior_pct_per_day: float = 20.0
+    growth_rate_prior_pct_per_day: float | None = None
     changepoint_priors: tuple = ()
     level_prior_centre: float | None = None
     level_prior_sd: float = 2.0
@@ -103,6 +111,9 @@ class ModelSpec:
             )
         if self.weekday not in (None, True, False):
             raise InputError(f"expected true or false, got {self.weekday!r}", column="weekday")
+        for name in ("jumps", "flat_segments"):
+            if getattr(self, name) not in (True, False):
+                raise InputError(f"expected true or false, got {getattr(self, name)!r}", column=name)
         _check_int("drop_last", self.drop_last, 0, 10_000)
         comp = tuple(float(c) for c in self.completeness)
         for i, c in enumerate(comp):
@@ -118,7 +129,8 @@ class ModelSpec:
             )
         if self.min_segment_days is not None:
             _check_float("min_segment_days", self.min_segment_days, 1.0, 1e5)
-        _check_float("growth_rate_prior_pct_per_day", self.growth_rate_prior_pct_per_day, 0.01, 1000)
+        if self.growth_rate_prior_pct_per_day is not None:
+            _check_float("growth_rate_prior_pct_per_day", self.growth_rate_prior_pct_per_day, 0.01, 10_000)
         if self.level_prior_centre is not None:
             _check_float("level_prior_centre", self.level_prior_centre, -50, 50)
         for name in ("level_prior_sd", "jump_prior_sd", "weekday_prior_sd", "dispersion_prior_scale"):
@@ -145,38 +157,10 @@ class ModelSpec:
 
     @property
     def growth_rate_prior_sd_per_day(self):
-        """Sd of the Normal prior on each segment's growth rate, per day."""
+        """Sd of the Normal prior on each segment's growth rate, per day (resolved specs)."""
+        if self.growth_rate_prior_pct_per_day is None:
+            raise ValueError("the growth-rate prior is chosen for a series: resolve the spec first")
         return math.log1p(self.growth_rate_prior_pct_per_day / 100.0) / 1.96
-
-    def resolved(self, interval_days):
-        """Fill the series-dependent defaults (weekday, min segment length).
-
-        Parameters
-        ----------
-        interval_days : {1, 7}
-
-        Returns
-        -------
-        ModelSpec
-            A copy with ``weekday`` and ``min_segment_days`` set.
-        """
-        weekday = self.weekday
-        if weekday is None:
-            weekday = interval_days == 1
-        if weekday and interval_days != 1:
-            raise InputError(
-                "a day-of-week effect needs a daily series; this one is weekly", column="weekday"
-            )
-        msd = self.min_segment_days
-        if msd is None:
-            msd = 14.0 if interval_days == 1 else 28.0
-        if msd < 2 * interval_days:
-            raise InputError(
-                f"minimum segment length must be at least two intervals "
-                f"({2 * interval_days} days), got {msd:g} days",
-                column="min_segment_days",
-            )
-        return replace(self, weekday=weekday, min_segment_days=float(msd))
 
     def to_dict(self):
         d = asdict(self)
@@ -319,7 +303,7 @@ def spec_from_options(options):
     for name in ("chains", "draws", "max_draws", "seed", "thin", "horizon", "snapshot_every", "warmup"):
         if name in run and run[name] is not None:
             run[name] = _as_int(name, run[name])
-    for name in ("weekday", "jumps"):
+    for name in ("weekday", "jumps", "flat_segments"):
         if name in model and model[name] is not None:
             model[name] = _as_bool(name, model[name])
     if "snapshot_summaries" in run:

@@ -61,12 +61,17 @@ def reported_quantities(model, positions):
     for j in range(model.K - 1):
         names.append(f"change date {j + 1} (day)")
         cols.append(q["knot_days"][:, j])
-    for j in range(model.K):
-        names.append(f"growth rate {j + 1} (per day)")
-        cols.append(q["growth_rate_per_day"][:, j])
-    for j in range(model.K + 1):
-        names.append(f"log level {j}")
-        cols.append(q["log_levels"][:, j])
+    if model.flat:  # rates are zero by construction: the segments' levels instead
+        for j in range(model.K):
+            names.append(f"segment level {j + 1} (log)")
+            cols.append(q["segment_log_levels"][:, j])
+    else:
+        for j in range(model.K):
+            names.append(f"growth rate {j + 1} (per day)")
+            cols.append(q["growth_rate_per_day"][:, j])
+        for j in range(model.K + 1):
+            names.append(f"log level {j}")
+            cols.append(q["log_levels"][:, j])
     if "jumps" in q:
         for j in range(model.K - 1):
             names.append(f"level jump {j + 1} (log)")

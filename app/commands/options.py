@@ -30,9 +30,11 @@ def add_model_arguments(p):
     p.add_argument("--completeness", metavar="F,F,...",
                    help="fractions already reported for the last values, latest first (e.g. 0.5,0.8,0.95)")
     p.add_argument("--min-segment-days", type=float, metavar="DAYS",
-                   help="minimum segment length (default 14 days daily, 28 weekly)")
-    p.add_argument("--growth-prior-pct", type=float, default=20.0, metavar="PCT",
-                   help="growth rates rarely exceed this many %% per day (default 20)")
+                   help="minimum segment length (default 14 days daily, 28 weekly; shorter when the series "
+                        "is too short for the segments asked)")
+    p.add_argument("--growth-prior-pct", type=float, metavar="PCT",
+                   help="growth rates rarely exceed this many %% per day (default: 20, wider for a series "
+                        "that changes faster)")
     p.add_argument("--change-date", action="append", default=[], metavar="DATE[:SPREAD]",
                    help="tentative change date with spread in days (default 14); repeat, one per change date")
     p.add_argument("--gi-mean", type=float, metavar="DAYS", help="generation interval mean, days")
@@ -63,7 +65,6 @@ def options_from_args(args, series):
         "weekday": args.weekday,
         "jumps": bool(args.jumps),
         "drop_last": args.drop_last,
-        "growth_rate_prior_pct_per_day": args.growth_prior_pct,
         "horizon": args.horizon,
         "chains": args.chains,
         "draws": args.draws,
@@ -75,6 +76,8 @@ def options_from_args(args, series):
         opts["max_draws"] = args.max_draws
     if args.min_segment_days is not None:
         opts["min_segment_days"] = args.min_segment_days
+    if args.growth_prior_pct is not None:
+        opts["growth_rate_prior_pct_per_day"] = args.growth_prior_pct
     if args.completeness:
         try:
             opts["completeness"] = [float(x) for x in args.completeness.split(",") if x.strip()]

@@ -91,10 +91,10 @@ def model_section():
                       options=[{"label": " Day-of-week reporting effect (daily series)", "value": "on"}]),
         dcc.Checklist(id=ids.JUMPS, value=[], className="check",
                       options=[{"label": " Allow a jump in level at each change date", "value": "on"}]),
-        _field("Growth rates rarely exceed (% per day)", _number(ids.GROWTH_PRIOR, 20, min_=0.5, max_=200, step=0.5),
-               hint="", id_=ids.GROWTH_PRIOR_NOTE),
+        _field("Growth rates rarely exceed (% per day)", _number(ids.GROWTH_PRIOR, None, min_=0.5, max_=2000, step=0.5),
+               hint="blank: 20, wider for a series that rises or falls faster", id_=ids.GROWTH_PRIOR_NOTE),
         _field("Minimum segment length (days)", _number(ids.MIN_SEGMENT, None, min_=2, max_=3650, step=1),
-               hint="blank: 14 days for daily series, 28 for weekly"),
+               hint="blank: 14 days for daily series, 28 for weekly, shorter for a short series"),
         _field("Leave out the last values as incomplete (intervals)", _number(ids.DROP_LAST, 0, min_=0, max_=60, step=1)),
         html.Div(className="pair", children=[
             _field("Generation interval mean (days)", _number(ids.GI_MEAN, None, min_=0.1, max_=60, step=0.1)),

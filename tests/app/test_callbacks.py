@@ -111,8 +111,8 @@ def test_fit_validates_and_names_the_control(app):
         key = _load_sample(app)
         url, _, err = running.fit(1, key, [], 3, "negbin", ["on"], [], 20, None, 0, 5.0, None, 14, 8, 100, 1)
         assert url is no_update and err.startswith("Generation interval")
-        url, _, err = running.fit(1, key, [], 3, "negbin", ["on"], [], None, None, 0, None, None, 14, 8, 100, 1)
-        assert "Growth-rate prior" in err and "empty" in err
+        url, _, err = running.fit(1, key, [], 3, "negbin", ["on"], [], 20, None, 0, None, None, 14, None, 100, 1)
+        assert "Chains" in err and "empty" in err
         url, _, err = running.fit(1, None, [], 3, "negbin", ["on"], [], 20, None, 0, None, None, 14, 8, 100, 1)
         assert err == "Load a series first."
 

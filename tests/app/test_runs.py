@@ -40,7 +40,7 @@ def test_bad_options_store_nothing(tmp_path, series):
     store = DiskRunStore(str(tmp_path))
     svc = RunService(store, InlineExecutor(store))
     with pytest.raises(InputError, match="segments"):
-        svc.submit(series, dict(FAST, segments=9))
+        svc.submit(series, dict(FAST, segments=9, min_segment_days=14))
     assert svc.list() == []
 
 
@@ -161,7 +161,7 @@ def test_a_segment_comparison_fits_each_count_and_recommends_one(tmp_path, serie
     store = DiskRunStore(str(tmp_path))
     svc = RunService(store, InlineExecutor(store))
     cmp = SegmentComparison(svc)
-    rec = cmp.start(series, dict(FAST, draws=150), owner="ana", ks=(1, 2, 3, 9))
+    rec = cmp.start(series, dict(FAST, draws=150, min_segment_days=14), owner="ana", ks=(1, 2, 3, 9))
     assert [m["segments"] for m in rec["members"]] == [1, 2, 3]
     assert rec["infeasible"][0]["segments"] == 9  # too many for 90 days: reported, not fitted
     done, support = cmp.state(rec["id"])

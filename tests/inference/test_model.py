@@ -24,7 +24,7 @@ def _theta(model, rng, knots=(40.3, 80.7), phi=15.0):
     lv = np.log(40.0)
     th = model.unconstrain(
         [list(knots)] if model.K > 1 else np.zeros((1, 0)),
-        [[lv, lv + 1.2, lv + 0.4, lv + 0.8][: model.K + 1]],
+        [[lv, lv + 1.2, lv + 0.4, lv + 0.8][: model.K + (0 if model.flat else 1)]],
         jumps=[[0.1, -0.2][: model.K - 1]] if model.jumps else None,
         weekday=[[0.1, 0.2, 0, 0, 0, -0.3, -0.2]] if model.weekday else None,
         dispersion=[phi] if model.negbin else None,
@@ -34,17 +34,16 @@ def _theta(model, rng, knots=(40.3, 80.7), phi=15.0):
 
 def _likelihood_only(model, theta):
     """The log density minus the prior terms, recomputed independently."""
-    p, gaps, tau = model._knots(theta)
-    eta = theta[:, model.slices["eta"]]
-    r = np.diff(eta, axis=1) / gaps
-    jumps = theta[:, model.slices["jump"]] if model.jumps else None
+    p, gaps, tau = model.knot_layout(theta)
+    eta, r, jumps = model._levels(theta, gaps)
     return model.log_density(theta) - model._log_prior(theta, p, gaps, tau, eta, r, jumps)
 
 
 @pytest.mark.parametrize("family", ["poisson", "negbin"])
-def test_likelihood_matches_scipy_logpmf(small_series, rng, family):
+@pytest.mark.parametrize("flat", [False, True])
+def test_likelihood_matches_scipy_logpmf(small_series, rng, family, flat):
     # Reference: scipy.stats.poisson / scipy.stats.nbinom log-pmf.
-    model = TrendModel(small_series, ModelSpec(segments=3, family=family))
+    model = TrendModel(small_series, ModelSpec(segments=3, family=family, flat_segments=flat))
     theta = _theta(model, rng)
     mu = np.exp(model.log_mean(theta))[0, model.obs_index]
     y = model.y_obs
@@ -58,11 +57,12 @@ def test_likelihood_matches_scipy_logpmf(small_series, rng, family):
 
 
 @pytest.mark.parametrize("family", ["poisson", "negbin"])
-@pytest.mark.parametrize("jumps", [False, True])
+@pytest.mark.parametrize("trend", ["continuous", "jumps", "flat"])
 @pytest.mark.parametrize("centred", [False, True])
-def test_gradient_matches_finite_differences(small_series, rng, family, jumps, centred):
+def test_gradient_matches_finite_differences(small_series, rng, family, trend, centred):
     cps = (ChangepointPrior(38, 5), ChangepointPrior(85, 10)) if centred else ()
-    spec = ModelSpec(segments=3, family=family, jumps=jumps, changepoint_priors=cps, completeness=(0.5, 0.8))
+    spec = ModelSpec(segments=3, family=family, jumps=trend == "jumps", flat_segments=trend == "flat",
+                     changepoint_priors=cps, completeness=(0.5, 0.8))
     model = TrendModel(small_series, spec)
     theta = _theta(model, rng)
     lp, g = model.value_and_grad(theta)
@@ -76,8 +76,9 @@ def test_gradient_matches_finite_differences(small_series, rng, family, jumps, c
 
 
 @pytest.mark.parametrize("phi", [2.0, 40.0, 1e5])
-def test_fast_gradient_agrees_with_exact(small_series, rng, phi):
-    model = TrendModel(small_series, ModelSpec(segments=3, family="negbin", jumps=True))
+@pytest.mark.parametrize("flat", [False, True])
+def test_fast_gradient_agrees_with_exact(small_series, rng, phi, flat):
+    model = TrendModel(small_series, ModelSpec(segments=3, family="negbin", jumps=not flat, flat_segments=flat))
     theta = np.concatenate([_theta(model, rng, phi=phi) for _ in range(5)])
     _, exact = model.value_and_grad(theta)
     fast = model.grad(theta)
@@ -98,7 +99,7 @@ def test_impossible_parameters_give_minus_infinity_not_errors(small_series, rng)
     model = TrendModel(small_series, ModelSpec(segments=3))
     theta = _theta(model, rng)
     wild = np.repeat(theta, 3, axis=0)
-    wild[0, model.slices["eta"]] = 1e6  # overflowing mean
+    wild[0, model.slices["trend"]] = 1e6  # overflowing mean
     wild[1] = np.nan
     wild[2, model.slices["z"]] = [1e308, -1e308]
     lp, g = model.value_and_grad(wild)
@@ -154,7 +155,7 @@ def test_uniform_knot_prior_is_uniform_over_ordered_positions(small_series, rng)
     z = rng.normal(0, 4, (200000, 2))
     theta = np.zeros((z.shape[0], model.dim))
     theta[:, model.slices["z"]] = z
-    p, gaps, tau = model._knots(theta)
+    p, gaps, tau = model.knot_layout(theta)
     logw = np.log(p).sum(axis=1) - stats.norm.logpdf(z, 0, 4).sum(axis=1)
     w = np.exp(logw - logw.max())
     w /= w.sum()
@@ -169,9 +170,13 @@ def test_uniform_knot_prior_is_uniform_over_ordered_positions(small_series, rng)
 def test_too_short_series_is_refused_with_the_numbers():
     s = Series.from_counts("2026-01-01", np.arange(20.0))
     with pytest.raises(InputError) as e:
-        TrendModel(s, ModelSpec(segments=3))
+        TrendModel(s, ModelSpec(segments=3, min_segment_days=14))
     msg = str(e.value)
     assert "20 values" in msg and "3 segments" in msg and "14 days" in msg
+    # left to the default, the minimum segment shrinks to fit, down to two days
+    assert TrendModel(s, ModelSpec(segments=3)).spec.min_segment_days == 2.0
+    with pytest.raises(InputError, match="5 values are too few for 3 segments of at least 2 days"):
+        TrendModel(Series.from_counts("2026-01-01", np.arange(5.0)), ModelSpec(segments=3))
 
 
 def test_too_few_observed_values_is_refused():

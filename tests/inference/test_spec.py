@@ -52,15 +52,6 @@ def test_drop_last_and_completeness_are_exclusive():
         ModelSpec(drop_last=3, completeness=(0.5,))
 
 
-def test_defaults_resolve_against_the_interval():
-    assert ModelSpec().resolved(1).weekday is True
-    assert ModelSpec().resolved(7).weekday is False
-    assert ModelSpec().resolved(1).min_segment_days == 14
-    assert ModelSpec().resolved(7).min_segment_days == 28
-    with pytest.raises(InputError, match="at least two intervals"):
-        ModelSpec(min_segment_days=7).resolved(7)
-
-
 def test_spec_must_be_an_object():
     with pytest.raises(InputError, match="JSON object"):
         spec_from_options(["segments", 3])

@@ -26,7 +26,7 @@ def controls_from_options(options, interval_days):
         o.get("family", "negbin"),
         ["on"] if o.get("weekday", interval_days == 1) in (True, None) and interval_days == 1 else [],
         ["on"] if o.get("jumps") else [],
-        o.get("growth_rate_prior_pct_per_day", 20),
+        o.get("growth_rate_prior_pct_per_day"),
         o.get("min_segment_days"),
         o.get("drop_last", 0),
         o.get("gi_mean"),

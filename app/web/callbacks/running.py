@@ -28,7 +28,6 @@ def options_from_controls(series, cps, segments, family, weekday, jumps, growth,
         "family": family,
         "weekday": bool(weekday) and series.interval_days == 1,
         "jumps": bool(jumps),
-        "growth_rate_prior_pct_per_day": growth,
         "drop_last": drop_last or 0,
         "horizon": horizon if horizon is not None else 14,
         "chains": chains,
@@ -38,11 +37,13 @@ def options_from_controls(series, cps, segments, family, weekday, jumps, growth,
     }
     if min_seg not in (None, ""):
         opts["min_segment_days"] = min_seg
+    if growth not in (None, ""):
+        opts["growth_rate_prior_pct_per_day"] = growth
     if gi_mean not in (None, "") or gi_sd not in (None, ""):
         opts["gi_mean"], opts["gi_sd"] = gi_mean, gi_sd
     if cps:
         opts["changepoint_priors"] = [{"day": c["day"], "spread_days": c["spread_days"]} for c in cps]
-    for key in ("segments", "growth_rate_prior_pct_per_day", "chains", "draws"):
+    for key in ("segments", "chains", "draws"):
         if opts[key] in (None, ""):
             raise InputError("this value is empty; enter a number", column=key)
     return opts

@@ -1,0 +1,198 @@
+"""A move that relocates one change date anywhere in the series, levels and all.
+
+Hamiltonian steps move a change date only locally. On real series the
+change-date posterior often has separated modes (two plausible years for a
+change, a spare knot idling in one straight stretch or another), and the
+levels that fit one position are far from those that fit the other, so a
+chain that moves a knot with its levels held fixed lands in a poor region
+and stays where it started. This move carries the levels along, and lets a
+knot pass its neighbours (the knots are an unordered set; the sampler's
+coordinates hold them sorted).
+
+For every chain at once:
+
+1. Pick one of the K-1 change dates uniformly at random, a lattice spacing
+   ``h`` (log-uniform between a fraction of an interval and a share of the
+   series, independent of the state) and a window of ``G`` lattice points
+   ``tau + (k - s) h``, ``k = 0..G-1``, holding the current position at a
+   uniformly random index ``s``.
+2. For each lattice point, replace the chosen date by it, sort, and carry
+   the level coordinates ``b`` (levels and jumps) along: with ``D(knots)``
+   and ``C(knots)`` the conditional posterior mode of the levels given all
+   knots, the day-of-week effects and the dispersion, and the Cholesky factor
+   of the conditional precision there
+   (:func:`inference.conditional.conditional_mode`), the candidate's levels
+   are ``D' + C'^-T C^T (b - D)``: the chain's standardised deviation from
+   its conditional mode is kept, the mode and the scale move with the knots.
+   Points that break the minimum segment length are not candidates.
+3. Pick one candidate with probability proportional to the posterior density
+   in knot coordinates (the sampler's density over the knot logits divided by
+   the Jacobian of the sorted knot positions in the logits,
+   :func:`knot_log_density`) times the map's Jacobian ``det C / det C'``.
+
+The maps ``T_m`` (move the chosen date by ``m h``, carry the levels as
+above) compose as ``T_m T_k = T_{m+k}``; ``D`` and ``C`` depend only on what
+the move leaves unchanged, so every member of the window sees the same window
+with the same probability (the moved date is picked with probability 1/(K-1)
+from either end, and the window's offset is uniform). Drawing a member in
+proportion to the density times the Jacobian is then the generalised Gibbs
+step of Liu & Sabatti (2000, "Generalised Gibbs sampler and multigrid Monte
+Carlo for Bayesian computation", Biometrika 87(2)) on a discrete group with
+counting measure, and leaves the posterior invariant. The tests check the
+group property and the Jacobian numerically (tests/inference/test_relocate.py).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .conditional import Binned, conditional_mode, dispersion, linear_index, offsets, z_from_knots
+
+#: Lattice points in one window (common practice, no source; measured in
+#: bench/engine.py).
+WINDOW = 24
+#: Finest lattice spacing, in intervals.
+FINEST = 0.25
+
+
+@dataclass(frozen=True)
+class RelocateInfo:
+    """What one move did, per chain."""
+
+    moved_days: np.ndarray  # (B,) distance the chosen knot moved, in days
+    window: int
+
+
+def spacing_range(model, window=WINDOW):
+    """(finest, coarsest) lattice spacing in intervals: the coarsest window spans the series."""
+    span = max(model.t_end - 2.0 * model.min_segment, 1e-9)
+    coarse = max(span / window, FINEST)
+    return min(FINEST, coarse), coarse
+
+
+def move(rng, model, theta, lp, window=WINDOW, binned=None):
+    """Relocate one randomly chosen change date of every chain (see the module text).
+
+    Parameters
+    ----------
+    rng : numpy.random.Generator
+    model : TrendModel
+    theta : numpy.ndarray, shape (B, dim)
+    lp : numpy.ndarray, shape (B,)
+        Exact log density of ``theta``.
+    window : int
+        Lattice points per window.
+    binned : Binned, optional
+        The model's binned counts (made here when not given).
+
+    Returns
+    -------
+    theta, lp, RelocateInfo
+        New positions and their exact log densities (new arrays).
+    """
+    B = theta.shape[0]
+    j = rng.integers(0, model.K - 1, size=B)
+    fine, coarse = spacing_range(model, window)
+    # half the moves span the whole series, half are log-uniform in scale
+    h = np.where(rng.random(B) < 0.5, coarse, np.exp(rng.uniform(np.log(fine), np.log(coarse), size=B)))
+    s = rng.integers(0, window, size=B)
+    cand, member, log_jac = orbit(model, theta, j, h, s, window, binned)
+    flat = cand.reshape(B * window, -1)
+    cand_lp = model.log_density(flat)
+    log_w = knot_log_density(model, flat, cand_lp) + log_jac.ravel()  # times the map's Jacobian
+    log_w = np.where(member.ravel() & np.isfinite(log_w), log_w, -np.inf).reshape(B, window)
+    pick = np.argmax(log_w + rng.gumbel(size=(B, window)), axis=1)  # Gumbel-max draw
+    ok = np.isfinite(log_w[np.arange(B), pick])
+    chosen = np.arange(B) * window + pick
+    new_theta = np.where(ok[:, None], flat[chosen], theta)
+    new_lp = np.where(ok, cand_lp[chosen], lp)
+    dist = np.where(ok, np.abs(pick - s) * h, 0.0) * model.interval_days
+    return new_theta, new_lp, RelocateInfo(dist, window)
+
+
+def knot_log_density(model, theta, lp=None):
+    """Log posterior density in knot coordinates (sorted knot positions, the rest as is).
+
+    The sampler's coordinates are knot-gap logits ``z``; the knot positions
+    ``tau`` are a smooth map of them with ``|d tau / d z| = S^(K-1) prod_k p_k``
+    (the cumulative sum of the gaps, times the additive-logistic Jacobian;
+    ``S`` the slack, ``p`` the gap fractions). Up to a constant, the density
+    over ``tau`` is the sampler's minus ``sum_k log p_k``.
+
+    Parameters
+    ----------
+    model : TrendModel
+    theta : numpy.ndarray, shape (B, dim)
+    lp : numpy.ndarray, shape (B,), optional
+        ``model.log_density(theta)`` when already known.
+    """
+    lp = model.log_density(theta) if lp is None else lp
+    p, _, _ = model.knot_layout(theta)
+    with np.errstate(divide="ignore"):
+        return lp - np.log(p).sum(axis=1)
+
+
+def orbit(model, theta, j, h, s, window=WINDOW, binned=None):
+    """The candidates of one move: a window of the orbit of each chain's point.
+
+    Parameters
+    ----------
+    model : TrendModel
+    theta : numpy.ndarray, shape (B, dim)
+    j : numpy.ndarray of int, shape (B,)
+        Which change date moves (rank in the chain's sorted dates, 0-based).
+    h : numpy.ndarray, shape (B,)
+        Lattice spacing, in intervals.
+    s : numpy.ndarray of int, shape (B,)
+        Index of the current point in the window.
+    window : int
+    binned : Binned, optional
+
+    Returns
+    -------
+    cand : numpy.ndarray, shape (B, window, dim)
+        Candidate positions; column ``s`` is the current point.
+    member : numpy.ndarray of bool, shape (B, window)
+        Feasible candidates (the others break the minimum segment length or
+        leave the series).
+    log_jac : numpy.ndarray, shape (B, window)
+        Log Jacobian of the map to each candidate, up to a constant per chain.
+    """
+    B, K, m = theta.shape[0], model.K, model.min_segment
+    _, _, tau = model.knot_layout(theta)
+    rows = np.arange(B)
+    cur = tau[rows, j]
+    pos = cur[:, None] + (np.arange(window)[None, :] - s[:, None]) * h[:, None]  # (B, window)
+    knots = np.repeat(tau, window, axis=0).reshape(B, window, K - 1)
+    knots[rows[:, None], np.arange(window)[None, :], j[:, None]] = pos
+    knots = np.sort(knots, axis=2)
+    edges = np.concatenate([np.zeros((B, window, 1)), knots, np.full((B, window, 1), model.t_end)], axis=2)
+    member = np.all(np.diff(edges, axis=2) > m, axis=2)
+    member[rows, s] = True  # the current point, whatever rounding says
+    knots[~member] = tau[np.nonzero(~member)[0]]  # padding: any feasible point
+    knots[rows, s] = tau
+    knots = knots.reshape(B * window, K - 1)
+    base = np.repeat(theta, window, axis=0)
+    binned = Binned.of(model) if binned is None else binned
+    off = np.repeat(binned.offsets(offsets(model, theta)), window, axis=0)  # the move keeps them
+    phi = dispersion(model, theta)
+    phi = None if phi is None else np.repeat(phi, window)
+    mode, chol = conditional_mode(model, knots, off, phi, binned=binned)
+    P = mode.shape[1]
+    mode = mode.reshape(B, window, P)
+    chol = chol.reshape(B, window, P, P)
+    idx = linear_index(model)
+    # the chain's standardised deviation from its conditional mode, kept by the move
+    u = np.matmul(chol[rows, s].transpose(0, 2, 1), (theta[:, idx] - mode[rows, s])[:, :, None])
+    dev = np.linalg.solve(chol.transpose(0, 1, 3, 2), np.broadcast_to(u[:, None], (B, window, P, 1)))[..., 0]
+    cand = base.copy()
+    cand[:, model.slices["z"]] = z_from_knots(model, knots)
+    cand[:, idx] = (mode + dev).reshape(B * window, P)
+    cand = cand.reshape(B, window, -1)
+    cand[rows, s] = theta  # exactly the current point
+    # log |det| of the map from the current point to each candidate, up to a
+    # constant per chain: -log det C(candidate)
+    log_jac = -np.log(np.diagonal(chol, axis1=2, axis2=3)).sum(axis=2)
+    return cand, member, log_jac
