@@ -38,7 +38,7 @@ api = Blueprint("api", __name__, url_prefix="/api/v1")
 LOADER_KEYS = ("region", "date_column", "count_column", "interval")
 
 #: Fields of each entry of ``GET /runs``.
-LIST_FIELDS = ("id", "status", "owner", "created_at", "series_name", "segments", "converged")
+LIST_FIELDS = ("id", "status", "owner", "created_at", "series_name", "segments", "converged", "reportable")
 
 _ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 _NO_SUCH_RUN = "no such run"

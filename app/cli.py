@@ -18,7 +18,7 @@ import sys
 EXIT_OK = 0
 EXIT_ERROR = 1
 EXIT_INPUT = 2
-EXIT_UNCONVERGED = 3
+EXIT_UNCONVERGED = 3  # finished, but not reportable (unconverged, or a warning invalidates the numbers)
 
 
 class _Parser(argparse.ArgumentParser):

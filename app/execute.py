@@ -94,6 +94,7 @@ def execute_run(store_location, run_id, *, store=None):
             "finished_at": now_iso(),
             "seconds": round(time.time() - started, 3),
             "converged": bool(result and result["diagnostics"]["converged"]),
+            "reportable": bool(result and result["diagnostics"].get("reportable")),
             "draws_per_chain": final.get("draws_per_chain") if final else 0,
         }
         if status == "stopped":

@@ -52,4 +52,13 @@ def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None
     result = build_result(
         model, settings, final, positions, rng, options=options, segment_support=segment_support
     )
+    # one verdict: the run's status and the final snapshot follow the result's
+    # diagnostics on every draw (the run's own checks thin them)
+    diag = result["diagnostics"]
+    if final["status"] in ("converged", "unconverged"):
+        final["status"] = "converged" if diag["converged"] else "unconverged"
+    final["diagnostics"] = dict(final.get("diagnostics") or {}, **{
+        k: diag[k] for k in ("converged", "reportable", "warnings", "rhat_max", "ess_bulk_min", "ess_tail_min")})
+    final["summary_text"] = result["summary_text"]
+    result["status"] = final["status"]
     return result, final

@@ -14,6 +14,8 @@ import numpy as np
 from . import SCHEMA_VERSION, summaries
 from .snapshots import ESS_MIN, RHAT_MAX, diagnose
 from .spec import options_from_spec
+from .verdict import assess, convergence_warnings
+from .wording import summary_sentence
 
 #: Shown with every result, in the app, the briefing view and the reports.
 CAUTIONS = (
@@ -35,12 +37,13 @@ def assumptions(model):
     """The model's assumptions in one line each, for footers and reports."""
     spec = model.spec
     fam = "negative binomial (overdispersed)" if spec.family == "negbin" else "Poisson"
+    shape = "flat level (level shifts only)" if model.flat else "exponential growth or decline"
     lines = [
-        f"{spec.segments} segment{'s' if spec.segments != 1 else ''} of exponential growth or decline, "
+        f"{spec.segments} segment{'s' if spec.segments != 1 else ''} of {shape}, "
         f"each at least {spec.min_segment_days:g} days long",
         f"observation model: {fam}",
         "day-of-week reporting effect: " + ("yes" if model.weekday else "no"),
-        "level jumps at change dates: " + ("yes" if model.jumps else "no"),
+        "level jumps at change dates: " + ("yes" if model.jumps or model.flat else "no"),
     ]
     if spec.drop_last:
         lines.append(f"last {spec.drop_last} values left out as incomplete")
@@ -49,9 +52,8 @@ def assumptions(model):
         lines.append(f"latest values taken as partly reported ({fr}, latest first)")
     else:
         lines.append("all values taken as complete")
-    lines.append(
-        f"growth-rate prior: 95% within ±{spec.growth_rate_prior_pct_per_day:g}% per day"
-    )
+    if not model.flat:
+        lines.append(f"growth-rate prior: 95% within ±{spec.growth_rate_prior_pct_per_day:g}% per day")
     if spec.changepoint_priors:
         lines.append("change dates: centred on the analyst's tentative dates")
     else:
@@ -97,6 +99,9 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
     for display_only in ("snapshot_every", "snapshot_seconds", "snapshot_summaries"):
         full_spec.pop(display_only, None)  # how progress was shown, not what was fitted
     stats = summaries.predictive_summary(model, flat, rng)
+    changepoints = summaries.changepoints(model, flat)
+    verdict = assess(model, positions, diag, final["sampler"], changepoints) if N >= 4 else {
+        "reportable": False, "warnings": convergence_warnings({"converged": False})}
     result = {
         "schema_version": SCHEMA_VERSION,
         "generated_at": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
@@ -107,6 +112,8 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
         "seed": settings.seed,
         "diagnostics": {
             "converged": bool(diag.get("converged", False)),
+            "reportable": verdict["reportable"],
+            "warnings": verdict["warnings"],
             "rhat_max": diag.get("rhat_max"),
             "ess_bulk_min": diag.get("ess_bulk_min"),
             "ess_tail_min": diag.get("ess_tail_min"),
@@ -120,7 +127,7 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
             "chains_restarted_in_warmup": final["sampler"]["chains_restarted_in_warmup"],
             "timings": final.get("timings"),
         },
-        "changepoints": summaries.changepoints(model, flat),
+        "changepoints": changepoints,
         "changepoint_histograms": summaries.changepoint_histograms(model, flat),
         "segments": summaries.segments(model, flat, gi),
         "current": summaries.current(model, flat, gi),
@@ -135,8 +142,10 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
         },
         "generation_interval": None if gi is None else {"mean_days": gi[0], "sd_days": gi[1]},
         "assumptions": assumptions(model),
+        "defaults_chosen": list(model.defaults_chosen),
         "cautions": list(CAUTIONS),
     }
+    result["summary_text"] = summary_sentence(result)
     if segment_support is not None:
         result["segment_support"] = segment_support
     return result

@@ -13,8 +13,10 @@ import math
 
 import numpy as np
 
+from .direction import direction, pct_block
 from .jsonsafe import num as _f
 from .jsonsafe import num_list as _flist
+from .modes import find_modes
 from .reproduction import reproduction_number
 
 LN2 = math.log(2.0)
@@ -139,21 +141,28 @@ def changepoints(model, theta):
     out = []
     for j in range(model.K - 1):
         d = q["knot_days"][:, j]
-        q05, q50, q95 = _q(d)
-        out.append(
-            {
-                "index": j + 1,
-                "median_day": _f(q50),
-                "q05_day": _f(q05),
-                "q95_day": _f(q95),
-                "mean_day": _f(np.mean(d)),
-                "sd_days": _f(np.std(d)),
-                "median_date": date_of_day(model, q50),
-                "q05_date": date_of_day(model, q05),
-                "q95_date": date_of_day(model, q95),
-            }
-        )
+        cp = dict(index=j + 1, **_date_summary(model, d), mean_day=_f(np.mean(d)), sd_days=_f(np.std(d)))
+        cp["modes"] = [
+            dict(_date_summary(model, d[m]), probability=_f(np.mean(m), 3))
+            for m in find_modes(d, min_width=model.interval_days)
+        ]
+        if "jumps" in q:
+            ratio = np.exp(q["jumps"][:, j])
+            lo, mid, hi = _q(ratio)
+            cp["level_ratio"] = {"median": _f(mid), "q05": _f(lo), "q95": _f(hi),
+                                 "prob_up": _f(np.mean(ratio > 1.0))}
+        out.append(cp)
     return out
+
+
+def _date_summary(model, d):
+    """Median and 90% interval of change-date draws, in days and as dates."""
+    q05, q50, q95 = _q(d)
+    return {
+        "median_day": _f(q50), "q05_day": _f(q05), "q95_day": _f(q95),
+        "median_date": date_of_day(model, q50), "q05_date": date_of_day(model, q05),
+        "q95_date": date_of_day(model, q95),
+    }
 
 
 def changepoint_histograms(model, theta, bins_per_interval=1):
@@ -191,37 +200,41 @@ def segments(model, theta, gi=None):
     out = []
     for j in range(model.K):
         r = q["growth_rate_per_day"][:, j]
-        doubling, halving = doubling_and_halving(r)
-        out.append(
-            {
-                "index": j + 1,
-                "start_date": date_of_day(model, edges[j]),
-                # the last day the segment covers (the series ends at n intervals)
-                "end_date": date_of_day(model, edges[j + 1] - 1e-9),
-                "start_day": _f(edges[j]),
-                "end_day": _f(edges[j + 1]),
-                "growth_rate_per_day": rate_summary(r),
-                "doubling_time_days": doubling,
-                "halving_time_days": halving,
-                "prob_growing": _f(np.mean(r > 0)),
-                "reproduction_number": _r_summary(r, gi),
-            }
-        )
+        seg = {
+            "index": j + 1,
+            "start_date": date_of_day(model, edges[j]),
+            # the last day the segment covers (the series ends at n intervals)
+            "end_date": date_of_day(model, edges[j + 1] - 1e-9),
+            "start_day": _f(edges[j]),
+            "end_day": _f(edges[j + 1]),
+            **_growth(r, gi),
+        }
+        if "segment_log_levels" in q:
+            lo, mid, hi = _q(np.exp(q["segment_log_levels"][:, j]) / model.interval_days)
+            seg["level_per_day"] = {"median": _f(mid), "q05": _f(lo), "q95": _f(hi)}
+        out.append(seg)
     return out
 
 
-def current(model, theta, gi=None):
-    """The growth rate at the last date of the series (the last segment's)."""
-    r = model.constrain(theta)["growth_rate_per_day"][:, -1]
+def _growth(r, gi):
+    """The growth-rate pieces of a segment or of the current trend, from draws per day."""
     doubling, halving = doubling_and_halving(r)
     return {
-        "date": str(model.series.end),
         "growth_rate_per_day": rate_summary(r),
+        "growth_pct_per_day": pct_block(r, 1.0),
+        "growth_pct_per_week": pct_block(r, 7.0),
+        "direction": direction(r),
         "doubling_time_days": doubling,
         "halving_time_days": halving,
         "prob_growing": _f(np.mean(r > 0)),
         "reproduction_number": _r_summary(r, gi),
     }
+
+
+def current(model, theta, gi=None):
+    """The growth rate at the last date of the series (the last segment's)."""
+    r = model.constrain(theta)["growth_rate_per_day"][:, -1]
+    return {"date": str(model.series.end), **_growth(r, gi)}
 
 
 #: Time points evaluated at once for bands and checks (bounds memory to

@@ -25,6 +25,7 @@ import time
 import unicodedata
 
 from inference.errors import InputError
+from inference.wording import verdict_of
 
 from ..cli import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json
 from .options import add_input_arguments, add_model_arguments, options_from_args
@@ -34,6 +35,14 @@ SUMMARY_COLUMNS = (
     "region",
     "status",
     "converged",
+    "reportable",
+    "direction",
+    "growth_pct_per_day_median",
+    "growth_pct_per_day_q05",
+    "growth_pct_per_day_q95",
+    "growth_pct_per_week_median",
+    "growth_pct_per_week_q05",
+    "growth_pct_per_week_q95",
     "growth_rate_per_day_median",
     "growth_rate_per_day_q05",
     "growth_rate_per_day_q95",
@@ -43,6 +52,7 @@ SUMMARY_COLUMNS = (
     "latest_change_date_median",
     "rhat_max",
     "ess_min",
+    "warnings",
     "message",
     "result_file",
 )
@@ -379,8 +389,15 @@ def summary_row(region, outcome, result_file=None):
     rate = current.get("growth_rate_per_day") or {}
     ess = [v for v in (diag.get("ess_bulk_min"), diag.get("ess_tail_min")) if v is not None]
     cps = result.get("changepoints") or []
+    day, week = current.get("growth_pct_per_day") or {}, current.get("growth_pct_per_week") or {}
     row.update(
         converged=bool(diag.get("converged")),
+        reportable=verdict_of(diag)[0],
+        direction=current.get("direction"),
+        growth_pct_per_day_median=day.get("median"), growth_pct_per_day_q05=day.get("q05"),
+        growth_pct_per_day_q95=day.get("q95"), growth_pct_per_week_median=week.get("median"),
+        growth_pct_per_week_q05=week.get("q05"), growth_pct_per_week_q95=week.get("q95"),
+        warnings=" | ".join(f"{w.get('kind')}: {w.get('message')}" for w in diag.get("warnings") or []) or None,
         growth_rate_per_day_median=rate.get("median"),
         growth_rate_per_day_q05=rate.get("q05"),
         growth_rate_per_day_q95=rate.get("q95"),
@@ -391,9 +408,11 @@ def summary_row(region, outcome, result_file=None):
         rhat_max=diag.get("rhat_max"),
         ess_min=min(ess) if ess else None,
     )
-    if not row["converged"] and not row["message"]:
-        row["message"] = (f"did not converge (max R-hat {diag.get('rhat_max')}, min ESS {row['ess_min']}; "
-                          f"needed {diag.get('criterion')}); do not report this region's estimates")
+    if not row["reportable"] and not row["message"]:
+        reasons = verdict_of(diag)[1]
+        why = reasons[0] if reasons else (f"did not converge (max R-hat {diag.get('rhat_max')}, min ESS "
+                                          f"{row['ess_min']}; needed {diag.get('criterion')})")
+        row["message"] = f"not reportable: {why} Do not report this region's estimates."
     return row
 
 
@@ -474,7 +493,7 @@ def report(rows, out_dir, interrupted=False):
     """The closing line on stderr and the exit status."""
     counts = {}
     for row in rows:
-        key = "converged" if row["converged"] else row["status"]
+        key = "reportable" if row["reportable"] else ("not reportable" if row["status"] != "failed" else "failed")
         counts[key] = counts.get(key, 0) + 1
     parts = ", ".join(f"{n} {what}" for what, n in sorted(counts.items()))
     sys.stderr.write(f"bendline batch: {len(rows)} regions: {parts}; results in {out_dir} "
@@ -482,8 +501,8 @@ def report(rows, out_dir, interrupted=False):
     if interrupted:
         sys.stderr.write("bendline batch: interrupted\n")
         return 130
-    if all(row["converged"] for row in rows):
+    if all(row["reportable"] for row in rows):
         return EXIT_OK
-    sys.stderr.write("bendline batch: some regions did not converge or could not be fitted; "
+    sys.stderr.write("bendline batch: some regions are not reportable or could not be fitted; "
                      "their estimates should not be reported (see the message column)\n")
     return EXIT_UNCONVERGED

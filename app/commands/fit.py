@@ -112,15 +112,30 @@ def run_fit(args):
     except OSError as exc:
         sys.stderr.write(f"bendline fit: cannot write the result to {args.out}: {exc}\n")
         return EXIT_ERROR
+    return verdict_to_stderr(result, quiet=args.quiet)
+
+
+def verdict_to_stderr(result, *, quiet=False, prog="bendline fit"):
+    """Say the result's verdict, warnings and summary on stderr; return the exit status.
+
+    0 when the result is reportable; 3 when the fit finished but its numbers
+    must not be reported (the reasons are printed even with ``--quiet``).
+    """
+    from inference.wording import verdict_of
+
     diag = result["diagnostics"]
-    if not diag["converged"]:
-        sys.stderr.write(
-            "bendline fit: the fit did not converge "
-            f"(max R-hat {diag['rhat_max']}, min bulk ESS {diag['ess_bulk_min']}, "
-            f"min tail ESS {diag['ess_tail_min']}; needed {diag['criterion']}); "
-            "the result was written with diagnostics.converged = false and should not be "
-            "reported. Try more draws (--draws), a longer time budget (--max-seconds), "
-            "fewer segments or a longer minimum segment length.\n"
-        )
-        return EXIT_UNCONVERGED
-    return EXIT_OK
+    ok, reasons = verdict_of(diag)
+    notes = [w["message"] for w in diag.get("warnings") or [] if not w.get("blocking")]
+    if not quiet:
+        sys.stderr.write(f"{prog}: {result.get('summary_text', '')}\n")
+        for note in notes:
+            sys.stderr.write(f"{prog}: note: {note}\n")
+    if ok:
+        return EXIT_OK
+    if not reasons:  # a result from before the verdict: only its convergence flag
+        reasons = ["The chains did not converge "
+                   f"(max R-hat {diag['rhat_max']}, min bulk ESS {diag['ess_bulk_min']}, "
+                   f"min tail ESS {diag['ess_tail_min']}; needed {diag['criterion']})."]
+    sys.stderr.write(f"{prog}: the result is not reportable and was written with diagnostics.reportable = "
+                     "false; do not report its numbers. " + " ".join(reasons) + "\n")
+    return EXIT_UNCONVERGED

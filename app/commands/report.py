@@ -69,6 +69,8 @@ def _write_text(path, text):
 
 
 def run_report(args):
+    from inference.wording import verdict_of
+
     from ..reports import TABLES, csv_tables, html_report, reportable
 
     result, problem = read_result(args.result)
@@ -91,6 +93,8 @@ def run_report(args):
         except OSError as exc:
             return _fail(f"cannot write the tables to {args.csv_dir}: {exc.strerror or exc}", EXIT_ERROR)
     if not reportable(result):
-        sys.stderr.write(f"{PROG}: the result did not converge; the report says so and its numbers "
-                         "should not be reported\n")
+        _ok, reasons = verdict_of(result.get("diagnostics"))
+        why = reasons[0] if reasons else "the chains did not converge."
+        sys.stderr.write(f"{PROG}: the result is not reportable: {why} The report says so; its numbers "
+                         "should not be reported.\n")
     return EXIT_OK

@@ -18,7 +18,7 @@ from .. import wording
 
 #: Statuses whose draws may be reported when the diagnostics converged.
 REPORTABLE = frozenset({"converged", "stopped"})
-NOT_CONVERGED_BOX = "Not converged: do not report these numbers"
+NOT_CONVERGED_BOX = wording.NOT_REPORTABLE
 
 
 class NotAResult(ValueError):
@@ -48,9 +48,22 @@ def check_result(obj):
 
 
 def reportable(result):
-    """True when a result's numbers may be reported: it converged and was not cut short unconverged."""
-    diag = (result or {}).get("diagnostics") or {}
-    return bool(diag.get("converged")) and (result or {}).get("status") in REPORTABLE
+    """The engine's verdict on a result: true when its numbers may be reported.
+
+    ``diagnostics.reportable`` (converged, and no warning that invalidates
+    the numbers); a result from before the verdict existed counts when its
+    chains converged. A failed or empty result never does.
+    """
+    if (result or {}).get("status") == "failed":
+        return False
+    return wording.verdict_of((result or {}).get("diagnostics"))[0]
+
+
+def warnings_of(view):
+    """The warnings to show beside the numbers: [(kind, message, blocking)]."""
+    diag = (view or {}).get("diagnostics") or {}
+    return [(w.get("kind"), w.get("message"), bool(w.get("blocking"))) for w in diag.get("warnings") or []
+            if isinstance(w, dict) and w.get("message")]
 
 
 def result_view(result):
@@ -89,13 +102,11 @@ def short_status(status, view):
         return "provisional", "Provisional: waiting to start"
     if status == "running":
         return "provisional", "Provisional: still sampling"
-    if status == "converged" and diag.get("converged", True):
-        return "final", "Converged"
-    if status == "stopped" and diag.get("converged"):
-        return "final", "Stopped early: draws converged"
     if status == "failed":
         return "bad", "Failed: no results"
-    return "bad", "Not converged: do not report"
+    if status in ("converged", "stopped", "unconverged") and wording.verdict_of(diag)[0]:
+        return "final", wording.REPORTABLE
+    return "bad", wording.NOT_REPORTABLE
 
 
 def title_text(name, end):
@@ -112,7 +123,7 @@ def hedged_summary(view, provisional, final):
     if provisional:
         return "Provisional, still sampling: " + text
     if not final:
-        return "Not converged, do not report: " + text
+        return "Not reportable, do not report: " + text
     return text
 
 

@@ -21,6 +21,7 @@ from ..version import CODE_VERSION
 from ..web import figures as F
 from ..web.presenting import label_projection
 from .content import (NOT_CONVERGED_BOX, about_lines, cautions_of, hedged_summary, reportable, result_view,
+                      warnings_of,
                       series_dict, short_status, title_text)
 
 #: Nothing may load from elsewhere: scripts and styles are inline, images data: only.
@@ -80,17 +81,19 @@ def _status_block(result):
     view = result_view(result)
     status = result.get("status") or "unconverged"
     cls, label = short_status(status, view)
-    if not reportable(result):
-        cls, label = "bad", short_status("unconverged", view)[1]
-    said = "unconverged" if status == "converged" and not reportable(result) else status
-    _cls, sentence = wording.status_line({"status": said}, view)
+    _cls, sentence = wording.status_line({"status": status}, view)
     parts = [f'<section id="status"><span class="badge {cls}">{_e(label)}</span>'
              f'<p class="status-line">{_e(sentence)}</p>']
     if not reportable(result):
         parts.append(f'<div class="not-converged" role="alert" id="not-converged"><strong>{_e(NOT_CONVERGED_BOX)}'
-                     '</strong>The sampler\'s chains did not meet the convergence criterion, so these estimates '
-                     'are unreliable. Refit (more draws, fewer segments or a longer minimum segment length) '
-                     'before using any number below.</div>')
+                     '</strong>The reasons are listed below. Refit (more draws, fewer segments, other priors or '
+                     'minimum segment length, as the reasons suggest) before using any number below.</div>')
+    warns = warnings_of(view)
+    if warns:
+        items = "".join(f'<li class="{"blocking" if blocking else "note"}"><strong>'
+                        f'{_e("Not reportable" if blocking else "Note")} ({_e(kind)}):</strong> {_e(msg)}</li>'
+                        for kind, msg, blocking in warns)
+        parts.append(f'<ul class="warnings" id="warnings" aria-label="Warnings">{items}</ul>')
     parts.append("</section>")
     return "".join(parts)
 
@@ -106,7 +109,7 @@ def _headline(view):
         return '<section id="headline"><p>No estimates: the run kept no draws.</p></section>'
     cards = "".join(f'<div class="stat"><div class="label">{_e(label)}</div><div class="value">{_e(value)}</div>'
                     f'<div class="detail">{_e(detail)}</div></div>' for label, value, detail in stats)
-    return (f'<section id="headline"><h2>Headline numbers (90% credible intervals)</h2>'
+    return (f'<section id="headline"><h2>Headline numbers (90% intervals)</h2>'
             f'<div class="stats">{cards}</div></section>')
 
 

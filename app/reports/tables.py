@@ -74,7 +74,7 @@ def _q(summary, key):
 
 
 def _status_text(result):
-    return "converged" if reportable(result) else "NOT CONVERGED: do not report"
+    return "reportable" if reportable(result) else "NOT REPORTABLE: do not report"
 
 
 def _write(header, rows, text_columns):

@@ -19,7 +19,7 @@ import dash
 from dash import Input, Output, State, ctx, dcc, html, no_update
 
 from .. import wording
-from ..reports.content import (BRIEF_CAUTION, about_lines, assumptions_from_options, cautions_of,
+from ..reports.content import (BRIEF_CAUTION, about_lines, assumptions_from_options, cautions_of, warnings_of,
                                gi_from_options, hedged_summary, headline, reportable, result_view, short_status,
                                title_text)
 from ..store import FINISHED, valid_run_id
@@ -42,6 +42,7 @@ TITLE = "brief-title"
 BADGE = "brief-badge"
 STATUS = "brief-status"
 HEADLINE = "brief-headline"
+WARNINGS = "brief-warnings"
 SUMMARY = "brief-summary"
 MAIN_BOX = "brief-main"
 MAIN = "brief-main-chart"
@@ -50,7 +51,7 @@ FOOTER = "brief-footer"
 
 OUTPUTS = (
     (ROOT, "className"), (TITLE, "children"), (BADGE, "children"), (BADGE, "className"), (STATUS, "children"),
-    (HEADLINE, "children"), (HEADLINE, "className"), (SUMMARY, "children"), (MAIN, "figure"), (RATES, "figure"),
+    (WARNINGS, "children"), (HEADLINE, "children"), (HEADLINE, "className"), (SUMMARY, "children"), (MAIN, "figure"), (RATES, "figure"),
     (FOOTER, "children"), (POLL, "disabled"), (DRAWN, "data"),
 )
 MAIN_CONFIG = {"displayModeBar": False, "displaylogo": False, "scrollZoom": False, "responsive": True}
@@ -80,6 +81,7 @@ def layout():
                 html.Div(id=BADGE, className="brief-badge", role="status"),
             ]),
             html.P(id=STATUS, className="brief-status", **{"aria-live": "polite"}),
+            html.Div(id=WARNINGS, className="brief-warning-box", **{"aria-live": "polite"}),
             html.Div(id=HEADLINE, className="brief-headline"),
             html.P(id=SUMMARY, className="brief-summary"),
             html.Div(id=MAIN_BOX, className="brief-main", children=[
@@ -111,9 +113,18 @@ def headline_cards(view, withheld):
         html.Div(detail, className="brief-stat-sub"),
     ]) for label, value, detail in headline(view)]
     if withheld and cards:
-        cards.insert(0, html.Div("Not converged: these numbers are unreliable",
-                                 className="brief-stat brief-withheld"))
+        cards.insert(0, html.Div(wording.NOT_REPORTABLE, className="brief-stat brief-withheld"))
     return cards
+
+
+def warning_list(view):
+    """The verdict's warnings in words, beside the headline numbers."""
+    warns = warnings_of(view)
+    if not warns:
+        return []
+    return html.Ul([html.Li([html.Strong("Not reportable: " if blocking else "Note: "), msg],
+                            className="brief-warning " + ("blocking" if blocking else "note"))
+                    for _kind, msg, blocking in warns], className="brief-warnings")
 
 
 def footer(cautions, assumptions, about):
@@ -175,6 +186,7 @@ def content(record, view, series, *, result=None, scale=1.0):
         (BADGE, "children"): badge,
         (BADGE, "className"): f"brief-badge {badge_cls}",
         (STATUS, "children"): sentence,
+        (WARNINGS, "children"): [] if live else warning_list(view),
         (HEADLINE, "children"): headline_cards(view, withheld),
         (HEADLINE, "className"): "brief-headline withheld" if withheld else "brief-headline",
         (SUMMARY, "children"): hedged_summary(view, provisional=live, final=final) if view else "",
@@ -192,6 +204,7 @@ def missing_content():
     return {
         (ROOT, "className"): "brief missing", (TITLE, "children"): "No such run",
         (BADGE, "children"): "", (BADGE, "className"): "brief-badge", (STATUS, "children"): NO_SUCH_RUN,
+        (WARNINGS, "children"): [],
         (HEADLINE, "children"): [], (HEADLINE, "className"): "brief-headline", (SUMMARY, "children"): "",
         (MAIN, "figure"): empty, (RATES, "figure"): empty,
         (FOOTER, "children"): footer(cautions_of(None), [], []), (POLL, "disabled"): True,

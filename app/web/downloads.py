@@ -62,7 +62,8 @@ def export_links(run_id, record, has_result):
     hrefs = [download_path(run_id, f) if enabled else "#" for _k, _l, f in EXPORTS]
     classes = ["btn small link-btn" + ("" if enabled else " disabled") for _ in EXPORTS]
     if enabled:
-        hint = "" if record.get("converged") else "Not converged: the exports say so; do not report these numbers."
+        ok = record.get("reportable", record.get("converged"))
+        hint = "" if ok else "Not reportable: the exports say so and why; do not report these numbers."
     elif record is None:
         hint = "Exports appear once a fit has finished."
     elif record["status"] not in FINISHED:

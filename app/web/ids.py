@@ -64,6 +64,8 @@ SCALE = "display-scale"
 
 # panels
 HEADLINE = "headline"
+SUMMARY = "summary-sentence"
+WARNINGS = "warning-list"
 STATUS_BANNER = "status-banner"
 MAIN = "main-chart"
 CHANGE_HIST = "change-date-chart"

@@ -145,8 +145,10 @@ def run_section():
 
 def results_area():
     return html.Div(className="results", children=[
-        html.Div(id=ids.STATUS_BANNER, className="banner"),
+        html.Div(id=ids.STATUS_BANNER, className="banner", role="status", **{"aria-live": "polite"}),
+        html.Ul(id=ids.WARNINGS, className="warning-list", **{"aria-live": "polite"}),
         html.Div(id=ids.HEADLINE, className="headline"),
+        html.P(id=ids.SUMMARY, className="summary-sentence"),
         html.Div(className="toolbar", children=[
             dcc.RadioItems(id=ids.STYLE, value="bars", inline=True, className="radio",
                            options=[{"label": " Bars", "value": "bars"}, {"label": " Points", "value": "points"}]),

@@ -74,7 +74,7 @@ def blend(hex_colour, alpha, background=WHITE):
 # -- roles -------------------------------------------------------------------
 #: 7-day centred average of the counts.
 AVERAGE_LINE = INK
-#: Posterior median of the trend and its 90% credible interval.
+#: Posterior median of the trend and its 90% interval.
 TREND_LINE = BLUE
 TREND_BAND = rgba(BLUE, 0.30)
 #: 90% posterior predictive interval of the counts (lighter, wider).

@@ -110,7 +110,8 @@ def test_json_post_fits_and_get_returns_the_result(make_app, tmp_path):
     listed = client.get("/api/v1/runs").get_json()["runs"]
     assert [x["id"] for x in listed] == [run_id]
     assert set(listed[0]) == {"id", "status", "owner", "created_at", "series_name", "segments",
-                              "converged"}
+                              "converged", "reportable"}
+    assert listed[0]["reportable"] == run["result"]["diagnostics"]["reportable"]
     assert listed[0]["segments"] == 2 and listed[0]["converged"] == (run["status"] == "converged")
 
 

@@ -15,6 +15,8 @@ from app.runs import RunService
 from app.store.disk import DiskRunStore
 from app.web import create_app, ids
 from app.web.callbacks import changes, loading, panels, running
+
+ST, PO = panels.NAMES.index("state"), panels.NAMES.index("poll_off")
 from app.web.context import AppServices, get_series
 
 from .figure_helpers import _load
@@ -129,8 +131,8 @@ def test_fit_submits_and_the_panels_render_the_run(app):
         out = panels.render(key, cps, "bars", "linear", None, run_id, None)
         main = out[0]
         assert [s["editable"] for s in main.layout.shapes[:2]] == [True, True]
-        assert any("credible" in (t.name or "") and len(t.y) == 273 for t in main.data)
-        assert out[15] is True  # the run is finished: no polling
+        assert any("90% interval" in (t.name or "") and len(t.y) == 273 for t in main.data)
+        assert out[PO] is True  # the run is finished: no polling
 
 
 def test_poll_sets_controls_and_trace_picker_only_when_they_change(app):
@@ -142,20 +144,20 @@ def test_poll_sets_controls_and_trace_picker_only_when_they_change(app):
         _, run_id, _ = running.fit(1, key, [], 2, "negbin", ["on"], [], 20, None, 0, None, None, 14, 4, 100, 2)
         trigger(f"{ids.RUN_ID}.data")
         out = panels.render(key, [], "bars", "linear", None, run_id, None)
-        state, param = out[14], out[5]
-        assert state["controls"] == out[15:19] and param in state["trace_names"]
+        state, param = out[ST], out[5]
+        assert state["controls"] == out[PO:PO + 4] and param in state["trace_names"]
         trigger(f"{ids.POLL}.n_intervals")
         again = panels.poll(1, run_id, state, key, [], None, param)
-        assert all(v is no_update for v in again[15:19]) and again[5] is no_update
+        assert all(v is no_update for v in again[PO:PO + 4]) and again[5] is no_update
         fresh = panels.poll(1, run_id, {"run": run_id}, key, [], None, param)
-        assert fresh[15] is True and fresh[14]["controls"] == out[15:19]
+        assert fresh[PO] is True and fresh[ST]["controls"] == out[PO:PO + 4]
         # the picker's value, set by a poll to what the state holds, does not redraw everything
         trigger(f"{ids.TRACE_PARAM}.value", param)
         skipped = panels.render(key, [], "bars", "linear", None, run_id, param, state)
         assert all(v is no_update for v in skipped)
         other = next(n for n in state["trace_names"] if n != param)
         redrawn = panels.render(key, [], "bars", "linear", None, run_id, other, state)
-        assert redrawn[5] == other and redrawn[14]["trace_param"] == other
+        assert redrawn[5] == other and redrawn[ST]["trace_param"] == other
 
 
 def test_a_runs_first_band_is_sent_alone_and_the_other_panels_follow(app):
@@ -170,11 +172,11 @@ def test_a_runs_first_band_is_sent_alone_and_the_other_panels_follow(app):
         first = panels.poll(1, run_id, state, key, [], None, None)
         assert first[0] is not no_update and first[10] is not no_update
         assert all(v is no_update for v in first[1:10])
-        assert first[14]["banded"] and first[14]["iteration"] is None
+        assert first[ST]["banded"] and first[ST]["iteration"] is None
         # then one group of panels per poll: the change dates, rates and weekday panels ...
-        second = panels.poll(2, run_id, first[14], key, [], None, None)
+        second = panels.poll(2, run_id, first[ST], key, [], None, None)
         assert all(second[i] is not no_update for i in (0, 1, 2, 6)) and second[3] is second[8] is no_update
-        assert second[14]["iteration"] is not None
+        assert second[ST]["iteration"] is not None
         snap = svc.store.get_snapshot(run_id)
 
         def newer(by):  # a later snapshot, with other segment numbers
@@ -183,21 +185,21 @@ def test_a_runs_first_band_is_sent_alone_and_the_other_panels_follow(app):
 
         # ... then the draws' summaries (traces, residual check, diagnostics)
         newer(3)
-        third = panels.poll(3, run_id, second[14], key, [], None, None)
+        third = panels.poll(3, run_id, second[ST], key, [], None, None)
         assert all(third[i] is not no_update for i in (3, 7, 8)) and third[1] is third[2] is no_update
         # a newer snapshot a moment later moves the main chart only ...
         newer(7)
-        fourth = panels.poll(4, run_id, third[14], key, [], None, None)
+        fourth = panels.poll(4, run_id, third[ST], key, [], None, None)
         assert fourth[0] is not no_update and fourth[1] is fourth[2] is no_update
         # ... and once SECONDARY_SECONDS have passed, the others follow
-        later = dict(fourth[14], secondary_at=fourth[14]["secondary_at"] - panels.SECONDARY_SECONDS)
+        later = dict(fourth[ST], secondary_at=fourth[ST]["secondary_at"] - panels.SECONDARY_SECONDS)
         newer(9)
         fifth = panels.poll(5, run_id, later, key, [], None, None)
         assert fifth[1] is not no_update and fifth[2] is not no_update
         # a finished run gets everything at once: its last poll stops the timer
         svc.store.update_run(run_id, status="converged")
         last = panels.poll(1, run_id, state, key, [], None, None)
-        assert last[15] is True and last[1] is not no_update and last[2] is not no_update
+        assert last[PO] is True and last[1] is not no_update and last[2] is not no_update
 
 
 def test_a_new_run_on_blank_panels_patches_the_main_chart_only(app):
@@ -205,21 +207,21 @@ def test_a_new_run_on_blank_panels_patches_the_main_chart_only(app):
         key = _load_sample(app)
         trigger(f"{ids.SERIES_KEY}.data")
         blank = panels.render(key, [], "bars", "linear", None, None, None)
-        assert blank[14]["run"] is None and blank[14]["series"] == key
+        assert blank[ST]["run"] is None and blank[ST]["series"] == key
         _, run_id, _ = running.fit(1, key, [], 2, "negbin", ["on"], [], 20, None, 0, None, None, 14, 4, 100, 2)
         svc = app.server.config["BENDLINE"]
         svc.store.update_run(run_id, status="running")
         svc.store.put_snapshot(run_id, _load("snapshot_00_init"))  # no band yet
         trigger(f"{ids.RUN_ID}.data", run_id)
-        out = panels.render(key, [], "bars", "linear", None, run_id, None, blank[14])
+        out = panels.render(key, [], "bars", "linear", None, run_id, None, blank[ST])
         assert isinstance(out[0], Patch) and all(v is no_update for v in out[1:10])
-        assert out[14]["run"] == run_id and out[15] is False  # polling starts
+        assert out[ST]["run"] == run_id and out[PO] is False  # polling starts
         # with a band already there, or over another run's panels, everything is drawn
         svc.store.put_snapshot(run_id, _load("snapshot_04_sampling"))
-        full = panels.render(key, [], "bars", "linear", None, run_id, None, blank[14])
+        full = panels.render(key, [], "bars", "linear", None, run_id, None, blank[ST])
         assert not isinstance(full[0], Patch) and full[2] is not no_update
         svc.store.put_snapshot(run_id, _load("snapshot_00_init"))
-        over = panels.render(key, [], "bars", "linear", None, run_id, None, full[14])
+        over = panels.render(key, [], "bars", "linear", None, run_id, None, full[ST])
         assert not isinstance(over[0], Patch)
 
 
@@ -232,7 +234,7 @@ def test_an_empty_panel_is_redrawn_when_its_empty_state_changes(app):
         blank = panels.render(key, [], "bars", "linear", None, None, None)
         _, run_id, _ = running.fit(1, key, [], 2, "negbin", [], [], 20, None, 0, None, None, 14, 4, 100, 2)
         trigger(f"{ids.POLL}.n_intervals")
-        out = panels.poll(1, run_id, dict(blank[14], run=run_id, iteration=-1), key, [], None, None)
+        out = panels.poll(1, run_id, dict(blank[ST], run=run_id, iteration=-1), key, [], None, None)
         assert out[6] is not no_update
         assert "not fitted" in out[6].layout.annotations[0].text
 
@@ -264,7 +266,7 @@ def test_the_last_poll_redraws_panels_a_throttled_poll_left_provisional(app):
                 "marks": panels._marks(streaming), "banded": True}
         trigger(f"{ids.POLL}.n_intervals")
         out = panels.poll(9, run_id, seen, key, [], None, None)
-        assert out[15] is True  # the last poll
+        assert out[PO] is True  # the last poll
         assert out[1] is not no_update and out[2] is not no_update and out[6] is not no_update
 
 

@@ -116,8 +116,8 @@ def test_brief_content_of_a_finished_run_is_the_result(site):
         trigger(f"{brief.URL}.pathname")
         out = dict(zip(brief.OUTPUTS, brief.update(f"/brief/{done}", None, {"w": 1920, "h": 1080}, None)))
     result = runs.result(done)
-    converged = result["diagnostics"]["converged"]
-    assert out[(brief.BADGE, "children")] == ("Converged" if converged else "Not converged: do not report")
+    converged = result["diagnostics"]["reportable"]
+    assert out[(brief.BADGE, "children")] == ("Reportable" if converged else "Not reportable: do not report these numbers")
     assert out[(brief.POLL, "disabled")] is True
     assert "data through 4 Oct 2026" in out[(brief.TITLE, "children")]
     text = str(out[(brief.HEADLINE, "children")])

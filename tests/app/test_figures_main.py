@@ -215,9 +215,14 @@ def test_provisional_note_until_final_and_converged(snaps, daily):
     done = snaps["snapshot_06_done"]
     assert _status(F.main_figure(daily, done)) == ""
     assert all("Provisional" not in (a.text or "") or a.visible is False for a in F.main_figure(daily, done).layout.annotations)
-    assert _status(F.main_figure(daily, _unconverged(done))) == "Not converged: do not report"
+    assert _status(F.main_figure(daily, _unconverged(done))) == "Not reportable: do not report"
     assert F.main_updates(daily, done)["annotations"][0]["visible"] is False
     assert F.main_updates(daily, snaps["snapshot_04_sampling"])["annotations"][0]["visible"] is True
+    # converged, but a warning invalidates the numbers: the figure says so too
+    blocked = dict(done, diagnostics=dict(done["diagnostics"], reportable=False, warnings=[
+        {"kind": "constraint", "message": "Change date 1 sits against the limit", "parameter": None,
+         "blocking": True}]))
+    assert _status(F.main_figure(daily, blocked)) == "Not reportable: do not report"
 
 
 def test_log_axis(daily, snaps):

@@ -37,14 +37,15 @@ def _plain(text):
 def test_rates_texts_growing_shrinking_straddling():
     snap = _rates_snapshot()
     grow, shrink, straddle = (F.growth_text(s) for s in snap["segments"])
-    assert grow == ("doubling every 12 days (9–17)", "P(growing) > 99% · R 1.31 (1.22–1.41)")
-    assert shrink == ("halving every 25 days (20–31)", "P(growing) < 1%")
-    assert straddle == ("doubling every 87 days (> 26, or no doubling)", "P(growing) 74%")
+    # the same words as the headline and the summary sentence (inference.wording.time_text)
+    assert grow[0].startswith("doubling every 12 days (") and grow[1] == "P(growing) > 99% · R 1.31 (1.22–1.41)"
+    assert shrink[0].startswith("halving every 25 days (") and shrink[1] == "P(growing) < 1%"
+    assert straddle[0].endswith("(at least 26, or no doubling)") and straddle[1] == "P(growing) 74%"
     halving_unbounded = {"halving_time_days": {"median": 140.0, "q05": 40.0, "q95": None}, "prob_growing": 0.2}
-    assert F.growth_text(halving_unbounded)[0] == "halving every 140 days (> 40, or no halving)"
+    assert F.growth_text(halving_unbounded)[0] == "halving every 140 days (at least 40, or no halving)"
     assert F.growth_text({"prob_growing": 0.5})[0] == "no clear doubling or halving"
     assert F.growth_text({"doubling_time_days": {"median": 6.25, "q05": 5.5, "q95": 7.1}})[0] == \
-        "doubling every 6.2 days (5.5–7.1)"
+        "doubling every 6.2 days (5.5 to 7.1)"
 
 
 def _named(fig, name):
@@ -80,8 +81,8 @@ def test_rates_figure_rows(snaps):
     assert "% change per day" in fig.layout.xaxis.title.text
     # symbols: above zero, below zero, straddling
     assert list(medians.marker.symbol) == ["triangle-up", "triangle-down", "circle"]
-    assert _named(fig, "segment 1 detail").text == "doubling every 12 days (9–17)<br>P(growing) > 99% · R 1.31 (1.22–1.41)"
-    assert _named(fig, "segment 2 detail").text == "<b>halving every 25 days (20–31)</b><br>P(growing) < 1%"
+    assert _named(fig, "segment 1 detail").text == "doubling every 12 days (9.0 to 17)<br>P(growing) > 99% · R 1.31 (1.22–1.41)"
+    assert _named(fig, "segment 2 detail").text == "<b>halving every 25 days (20 to 31)</b><br>P(growing) < 1%"
     assert any(s.type == "line" and s.x0 == 0 and s.x1 == 0 for s in fig.layout.shapes)  # zero line
     highlighted = [s for s in fig.layout.shapes if s.name == "highlighted segment"]
     assert len(highlighted) == 1 and (highlighted[0].y0, highlighted[0].y1) == (0.5, 1.5)  # row 2
@@ -131,7 +132,7 @@ def test_rates_text_is_short_enough_for_a_narrow_column(name, snaps):
     fig = F.rates_figure({"phase": "sampling", "segments": [longest]})
     for _, line in _text_lines(fig):
         assert len(line) <= 56, line
-    assert "doubling every 87 days (> 26, or no doubling)" in _named(fig, "segment 12 detail").text
+    assert "doubling every 87 days (at least 26, or no doubling)" in _named(fig, "segment 12 detail").text
 
 
 # ------------------------------------------------------------- change dates

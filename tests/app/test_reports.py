@@ -167,7 +167,7 @@ def test_csv_tables_parse_and_their_numbers_are_the_results(result):
         assert float(row["growth_rate_per_day_q05"]) == g["q05"]
         assert float(row["growth_pct_per_day_median"]) == pytest.approx(100 * math.expm1(g["median"]))
         assert float(row["prob_growing"]) == seg["prob_growing"]
-        assert row["start_date"] == seg["start_date"] and row["status"] == "converged"
+        assert row["start_date"] == seg["start_date"] and row["status"] == "reportable"
         t = seg["doubling_time_days"] or {}
         assert (row["doubling_time_days_median"] == "") == (t.get("median") is None)
     cps = _rows(tables["changepoints"])
@@ -190,7 +190,7 @@ def test_csv_tables_parse_and_their_numbers_are_the_results(result):
 def test_an_unconverged_result_is_marked_in_every_table(result):
     for name, text in csv_tables(_unconverged(result)).items():
         rows = _rows(text)
-        assert rows and all(r["status"] == "NOT CONVERGED: do not report" for r in rows), name
+        assert rows and all(r["status"] == "NOT REPORTABLE: do not report" for r in rows), name
 
 
 @pytest.mark.parametrize("cell, safe", [
@@ -256,7 +256,8 @@ def test_report_cli_warns_about_an_unconverged_result(result, tmp_path, capsys):
     src = tmp_path / "bad.json"
     src.write_text(json.dumps(_unconverged(result)))
     assert _run(str(src), "--html", str(tmp_path / "o.html")) == 0
-    assert "did not converge" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert "not reportable" in err and "did not converge" in err
 
 
 @pytest.mark.parametrize("content, words", [

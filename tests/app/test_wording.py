@@ -56,7 +56,7 @@ def test_headline_stats_carry_intervals():
     stats = dict((k, (v, d)) for k, v, d in wording.headline_stats(_result(0.03, 0.05, 0.07, 1.0,
                                                                           {"median": 13.9, "q05": 9.9, "q95": 23.1})))
     assert stats["Current growth rate"][0] == "+5.1% per day"
-    assert "90% CrI +3.0% to +7.3%" in stats["Current growth rate"][1]
+    assert "90% interval +3.0% to +7.3%" in stats["Current growth rate"][1]
     assert stats["Doubling time"][0] == "14 days"
     assert stats["Probability growing"][0] == "> 99%"
     assert stats["Latest change date"][0] == "12 Mar 2026"
@@ -67,6 +67,12 @@ def test_status_line_never_calls_unconverged_results_final():
                                                                            "ess_tail_min": 80}})[0] == "bad"
     assert wording.status_line({"status": "running"}, {"phase": "sampling", "draws_per_chain": 50})[0] == "provisional"
     assert wording.status_line({"status": "converged"}, {"diagnostics": {"rhat_max": 1.004, "ess_bulk_min": 900,
-                                                                         "ess_tail_min": 800}})[0] == "final"
+                                                                         "ess_tail_min": 800,
+                                                                         "converged": True}})[0] == "final"
+    # converged but a warning invalidates the numbers: the one verdict says not reportable
+    cls, text = wording.status_line({"status": "converged"}, {"diagnostics": {
+        "converged": True, "reportable": False, "rhat_max": 1.004, "ess_bulk_min": 900, "ess_tail_min": 800,
+        "warnings": [{"kind": "constraint", "message": "Change date 1 sits against ...", "blocking": True}]}})
+    assert cls == "bad" and "Not reportable" in text and "Change date 1 sits against" in text
     cls, text = wording.status_line({"status": "stopped"}, {"diagnostics": {"converged": False}})
     assert cls == "bad" and "do not report" in text

@@ -23,14 +23,28 @@ from .. import ids
 from ..context import current_user, get_series, services, store_guarded
 from ..layout import POLL_MS
 
-PANEL_OUTPUTS = (
-    (ids.MAIN, "figure"), (ids.CHANGE_HIST, "figure"), (ids.RATES, "figure"), (ids.TRACE, "figure"),
-    (ids.TRACE_PARAM, "options"), (ids.TRACE_PARAM, "value"), (ids.WEEKDAY_FIG, "figure"),
-    (ids.RESIDUALS, "figure"), (ids.DIAG_TABLE, "data"), (ids.DIAG_SUMMARY, "children"),
-    (ids.HEADLINE, "children"), (ids.PROGRESS, "children"), (ids.STATUS_BANNER, "children"),
-    (ids.STATUS_BANNER, "className"), (ids.FIGURE_RUN, "data"), (ids.POLL, "disabled"),
-    (ids.STOP, "disabled"), (ids.BRIEF_LINK, "href"), (ids.BRIEF_LINK, "className"), (ids.POLL, "interval"),
-)
+#: The panels' outputs by name; callbacks build dicts keyed by these names and
+#: :func:`_as_list` orders them for Dash.
+PANEL_OUTPUTS = {
+    "main": (ids.MAIN, "figure"), "hist": (ids.CHANGE_HIST, "figure"), "rates": (ids.RATES, "figure"),
+    "trace": (ids.TRACE, "figure"), "trace_options": (ids.TRACE_PARAM, "options"),
+    "trace_value": (ids.TRACE_PARAM, "value"), "weekday": (ids.WEEKDAY_FIG, "figure"),
+    "residuals": (ids.RESIDUALS, "figure"), "diag_rows": (ids.DIAG_TABLE, "data"),
+    "diag_summary": (ids.DIAG_SUMMARY, "children"), "headline": (ids.HEADLINE, "children"),
+    "summary": (ids.SUMMARY, "children"), "warnings": (ids.WARNINGS, "children"),
+    "progress": (ids.PROGRESS, "children"), "banner": (ids.STATUS_BANNER, "children"),
+    "banner_class": (ids.STATUS_BANNER, "className"), "state": (ids.FIGURE_RUN, "data"),
+    "poll_off": (ids.POLL, "disabled"), "stop_off": (ids.STOP, "disabled"), "brief_href": (ids.BRIEF_LINK, "href"),
+    "brief_class": (ids.BRIEF_LINK, "className"), "poll_ms": (ids.POLL, "interval"),
+}
+NAMES = tuple(PANEL_OUTPUTS)
+CONTROL_NAMES = ("poll_off", "stop_off", "brief_href", "brief_class")
+
+
+def _as_list(out):
+    """A dict of named outputs as Dash's list, ``no_update`` for the names not given."""
+    return [out.get(name, no_update) for name in NAMES]
+
 
 #: Poll period (ms) until a run's first band (the band comes a fraction of a
 #: second after Fit; a watcher should see it at once); then the layout's POLL_MS.
@@ -58,7 +72,7 @@ def to_patch(updates):
 
 
 RESULT_PARTS = ("band", "segments", "changepoints", "changepoint_histograms", "current", "projection",
-                "weekday", "checks")
+                "weekday", "checks", "spec_resolved")
 
 
 def _run_view(run_id):
@@ -81,7 +95,9 @@ def _run_view(run_id):
             snap = dict(snap, **{k: result[k] for k in RESULT_PARTS if k in result})
             snap["diagnostics"] = dict(snap.get("diagnostics") or {}, **{
                 k: v for k, v in result["diagnostics"].items()
-                if k in ("converged", "rhat_max", "ess_bulk_min", "ess_tail_min", "parameters")})
+                if k in ("converged", "reportable", "warnings", "rhat_max", "ess_bulk_min", "ess_tail_min",
+                         "parameters")})
+            snap["summary_text"] = result.get("summary_text")
     return rec, snap
 
 
@@ -113,6 +129,32 @@ def headline_children(snapshot):
             html.Div(detail, className="stat-sub"),
         ]))
     return out
+
+
+def summary_children(rec, snapshot):
+    """The plain-language sentence under the headline, hedged while the numbers may not be reported."""
+    if not snapshot or not snapshot.get("current"):
+        return ""
+    live = rec is not None and rec["status"] not in FINISHED
+    final = snapshot.get("phase") == "done" and wording.verdict_of(snapshot.get("diagnostics"))[0]
+    text = snapshot.get("summary_text") if snapshot.get("phase") == "done" else None
+    text = text or wording.summary_sentence(snapshot)
+    if live:
+        return "Provisional, still sampling: " + text
+    return text if final else "Not reportable, do not report: " + text
+
+
+def warning_children(snapshot):
+    """The verdict's warnings in words, beside the numbers (finished runs)."""
+    if not snapshot or snapshot.get("phase") != "done":
+        return []
+    items = []
+    for w in ((snapshot.get("diagnostics") or {}).get("warnings") or []):
+        if isinstance(w, dict) and w.get("message"):
+            blocking = bool(w.get("blocking"))
+            items.append(html.Li([html.Strong("Not reportable: " if blocking else "Note: "), w["message"]],
+                                 className="blocking" if blocking else "note"))
+    return items
 
 
 def _trace_choice(snapshot, current):
@@ -150,39 +192,43 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, state=
     """
     if (state and state.get("run") == run_id and state.get("trace_param") == trace_param
             and ctx.triggered_id == ids.TRACE_PARAM):
-        return [no_update] * len(PANEL_OUTPUTS)
+        return _as_list({})
     svc = services()
     series, _ = get_series(svc.store, series_key)
     rec, snap = _run_view(run_id)
     if series is None:
         blank = F.empty_figure("Load a series to begin.")
-        return [blank, F.empty_figure(""), F.empty_figure("No fit yet."), F.empty_figure(""), [], None,
-                F.empty_figure(""), F.empty_figure(""), [], "", [], "", "", "", None, True, True, "#",
-                "btn link-btn disabled", POLL_MS]
+        return _as_list({
+            "main": blank, "hist": F.empty_figure(""), "rates": F.empty_figure("No fit yet."),
+            "trace": F.empty_figure(""), "trace_options": [], "trace_value": None, "weekday": F.empty_figure(""),
+            "residuals": F.empty_figure(""), "diag_rows": [], "diag_summary": "", "headline": [], "summary": "",
+            "warnings": [], "progress": "", "banner": "", "banner_class": "", "state": None, "poll_off": True,
+            "stop_off": True, "brief_href": "#", "brief_class": "btn link-btn disabled", "poll_ms": POLL_MS})
     sd = series.to_dict()
     # a run on another series (e.g. a new file was loaded) is not drawn over this one
     if rec is not None and rec.get("series_hash") != series.content_hash():
         rec, snap = None, None
     if rec is not None and _shows_nothing_yet(state, series_key, run_id, snap):
-        return _start_run(sd, rec, snap, cps, highlight, run_id, state)
+        return _as_list(_start_run(sd, rec, snap, cps, highlight, run_id, state))
     log_y = scale == "log"
     main = F.main_figure(sd, snap, cps or [], log_y=log_y, style=style, highlight_segment=highlight)
     hist = F.changepoint_figure(sd, snap, highlight_segment=highlight)
-    rates = F.rates_figure(snap, highlight_segment=highlight)
     options, trace_param = _trace_choice(snap, trace_param)
     trace = F.trace_figure(snap, trace_param)
-    weekday = F.weekday_figure(snap)
     resid = F.residual_figure(snap)
     banner_cls, banner = wording.status_line(rec, snap)
-    poll_off, stop_off, href, brief_cls = _controls_state(rec)
+    controls = dict(zip(CONTROL_NAMES, _controls_state(rec)))
     counts = {"hist": len(hist.data), "trace": len(trace.data), "resid": len(resid.data)}
     state = dict(_state(run_id if rec else None, snap, counts, trace_param), series=series_key,
-                 controls=[poll_off, stop_off, href, brief_cls], trace_names=[o["value"] for o in options])
-    return [main, hist, rates, trace, options, trace_param, weekday, resid,
-            F.diagnostics_rows(snap), F.diagnostics_summary(snap) if snap else "",
-            headline_children(snap), wording.progress_line(rec, snap), banner, f"banner {banner_cls}",
-            state, poll_off, stop_off, href, brief_cls,
-            FIRST_POLL_MS if rec is not None and not poll_off and not state["banded"] else POLL_MS]
+                 controls=list(controls.values()), trace_names=[o["value"] for o in options])
+    return _as_list(dict(
+        main=main, hist=hist, rates=F.rates_figure(snap, highlight_segment=highlight), trace=trace,
+        trace_options=options, trace_value=trace_param, weekday=F.weekday_figure(snap), residuals=resid,
+        diag_rows=F.diagnostics_rows(snap), diag_summary=F.diagnostics_summary(snap) if snap else "",
+        headline=headline_children(snap), summary=summary_children(rec, snap), warnings=warning_children(snap),
+        progress=wording.progress_line(rec, snap), banner=banner, banner_class=f"banner {banner_cls}",
+        state=state, poll_ms=FIRST_POLL_MS if rec is not None and not controls["poll_off"] and not state["banded"]
+        else POLL_MS, **controls))
 
 
 def _shows_nothing_yet(state, series_key, run_id, snap):
@@ -201,17 +247,16 @@ def _shows_nothing_yet(state, series_key, run_id, snap):
 
 def _start_run(sd, rec, snap, cps, highlight, run_id, state):
     """render()'s outputs for a run just started on blank panels (see _shows_nothing_yet)."""
-    out = [no_update] * len(PANEL_OUTPUTS)
-    out[0] = to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight))
     banner_cls, banner = wording.status_line(rec, snap)
-    controls = list(_controls_state(rec))
-    out[10:14] = [headline_children(snap), queue_note(rec) or wording.progress_line(rec, snap), banner,
-                  f"banner {banner_cls}"]
-    out[14] = dict(state, run=run_id, iteration=(snap or {}).get("iteration"), phase=(snap or {}).get("phase"),
-                   controls=controls)
-    out[15:19] = controls
-    out[19] = FIRST_POLL_MS
-    return out
+    controls = dict(zip(CONTROL_NAMES, _controls_state(rec)))
+    return dict(
+        main=to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight)),
+        headline=headline_children(snap), summary=summary_children(rec, snap), warnings=[],
+        progress=queue_note(rec) or wording.progress_line(rec, snap), banner=banner,
+        banner_class=f"banner {banner_cls}", poll_ms=FIRST_POLL_MS,
+        state=dict(state, run=run_id, iteration=(snap or {}).get("iteration"), phase=(snap or {}).get("phase"),
+                   controls=list(controls.values())),
+        **controls)
 
 
 def _groups_due(state, old, new, *, finished):
@@ -263,58 +308,58 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     convergence check. A run's first band goes alone; the poll that sees the
     run finished draws everything.
     """
-    keep = [no_update] * len(PANEL_OUTPUTS)
     rec, snap = _run_view(run_id)
     if rec is None:
-        keep[PANEL_OUTPUTS.index((ids.POLL, "disabled"))] = True
-        return keep
+        return _as_list({"poll_off": True})
     series, _ = get_series(services().store, series_key)
     state = state or {}
-    out = list(keep)
     banner_cls, banner = wording.status_line(rec, snap)
-    out[11:14] = [queue_note(rec) or wording.progress_line(rec, snap), banner, f"banner {banner_cls}"]
+    out = {"progress": queue_note(rec) or wording.progress_line(rec, snap), "banner": banner,
+           "banner_class": f"banner {banner_cls}"}
     # Controls only when they change: Dash fires every callback listening to an
     # output that is set, even to the same value (the run list and the export
     # links listen to the poll's "disabled").
     controls = list(_controls_state(rec))
+    finished = controls[0]
     if controls != state.get("controls"):
-        out[15:19] = controls
-        out[14] = dict(state, controls=controls)
+        out.update(zip(CONTROL_NAMES, controls))
+        out["state"] = dict(state, controls=controls)
     # The poll that sees the run finished is its last: it draws everything,
     # even if it already saw the final snapshot (written just before the
     # status), since the result's summaries replace the snapshot's.
     if series is None or snap is None or state.get("run") != run_id or (
-            not controls[0] and snap.get("iteration") == state.get("iteration")
+            not finished and snap.get("iteration") == state.get("iteration")
             and snap.get("phase") == state.get("phase")):
-        return out
+        return _as_list(out)
     sd = series.to_dict()
     counts = dict(state.get("counts") or {})
     old, new = state.get("marks") or {}, _marks(snap)
-    out[0] = to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight))
-    out[10] = headline_children(snap)
-    if snap.get("band") and not state.get("banded") and not controls[0]:
+    out["main"] = to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight))
+    out["headline"] = headline_children(snap)
+    out["summary"] = summary_children(rec, snap)
+    out["warnings"] = warning_children(snap)
+    if snap.get("band") and not state.get("banded") and not finished:
         # The run's first band: send the main chart alone so the browser draws
         # it at once; the other panels follow on the next poll (the state keeps
         # their old marks and no iteration, so that poll redraws them). Not
         # when the run has finished: then this poll is the last.
-        first = dict(state, controls=controls, banded=True, iteration=None, phase=None)
-        out[14] = first
-        out[19] = POLL_MS
-        return out
-    draw_secondary, draw_diag = _groups_due(state, old, new, finished=controls[0])
+        out["state"] = dict(state, controls=controls, banded=True, iteration=None, phase=None)
+        out["poll_ms"] = POLL_MS
+        return _as_list(out)
+    draw_secondary, draw_diag = _groups_due(state, old, new, finished=finished)
     secondary_at, diag_drawn_at = state.get("secondary_at"), state.get("diag_drawn_at")
     if draw_secondary:
         secondary_at = time.time()
         hist_up = F.changepoint_updates(sd, snap)
         if hist_up["trace_count"] and hist_up["trace_count"] == counts.get("hist"):
-            out[1] = to_patch(hist_up)
+            out["hist"] = to_patch(hist_up)
         else:
             fig = F.changepoint_figure(sd, snap, highlight_segment=highlight)
-            out[1], counts["hist"] = fig, len(fig.data)
+            out["hist"], counts["hist"] = fig, len(fig.data)
         if new["segments"] != old.get("segments"):
-            out[2] = F.rates_figure(snap, highlight_segment=highlight)
+            out["rates"] = F.rates_figure(snap, highlight_segment=highlight)
         if new["weekday"] != old.get("weekday"):
-            out[6] = F.weekday_figure(snap)
+            out["weekday"] = F.weekday_figure(snap)
     else:  # not yet: the marks stay, so a later poll redraws them
         new["segments"], new["weekday"] = old.get("segments"), old.get("weekday")
     param = state.get("trace_param")
@@ -323,30 +368,30 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
         options, param = _trace_choice(snap, trace_param)
         tr_up = F.trace_updates(snap, param)
         if tr_up["trace_count"] and tr_up["trace_count"] == counts.get("trace") and param == state.get("trace_param"):
-            out[3] = to_patch(tr_up)
+            out["trace"] = to_patch(tr_up)
         else:
             fig = F.trace_figure(snap, param)
-            out[3], counts["trace"] = fig, len(fig.data)
+            out["trace"], counts["trace"] = fig, len(fig.data)
         # the picker's value is an input of render(): set it only when it changes
         trace_names = [o["value"] for o in options]
         if trace_names != state.get("trace_names"):
-            out[4] = options
+            out["trace_options"] = options
         if param != trace_param:
-            out[5] = param  # render() sees it equals the state's and skips
+            out["trace_value"] = param  # render() sees it equals the state's and skips
         res_up = F.residual_updates(snap)
         if res_up["trace_count"] and res_up["trace_count"] == counts.get("resid"):
-            out[7] = to_patch(res_up)
+            out["residuals"] = to_patch(res_up)
         else:
             fig = F.residual_figure(snap)
-            out[7], counts["resid"] = fig, len(fig.data)
-        out[8] = F.diagnostics_rows(snap)
-        out[9] = F.diagnostics_summary(snap)
+            out["residuals"], counts["resid"] = fig, len(fig.data)
+        out["diag_rows"] = F.diagnostics_rows(snap)
+        out["diag_summary"] = F.diagnostics_summary(snap)
     else:
         trace_names = state.get("trace_names")
         new["diag"], new["phase"] = old.get("diag"), old.get("phase")
-    out[14] = dict(_state(run_id, snap, counts, param, new), controls=controls, trace_names=trace_names,
-                   secondary_at=secondary_at, diag_drawn_at=diag_drawn_at)
-    return out
+    out["state"] = dict(_state(run_id, snap, counts, param, new), controls=controls, trace_names=trace_names,
+                        secondary_at=secondary_at, diag_drawn_at=diag_drawn_at)
+    return _as_list(out)
 
 
 def highlight(click, current):
@@ -378,11 +423,10 @@ def sync_zoom(relayout):
 
 
 def register(app):
-    outs = [Output(c, p) for c, p in PANEL_OUTPUTS]
+    outs = [Output(c, p) for c, p in PANEL_OUTPUTS.values()]
     n = len(PANEL_OUTPUTS)
-    down = {PANEL_OUTPUTS.index((ids.PROGRESS, "children")): lambda t: t,
-            PANEL_OUTPUTS.index((ids.STATUS_BANNER, "children")): lambda t: t,
-            PANEL_OUTPUTS.index((ids.STATUS_BANNER, "className")): "banner bad"}
+    down = {NAMES.index("progress"): lambda t: t, NAMES.index("banner"): lambda t: t,
+            NAMES.index("banner_class"): "banner bad"}
     app.callback(
         *outs,
         Input(ids.SERIES_KEY, "data"),
@@ -395,7 +439,7 @@ def register(app):
         State(ids.FIGURE_RUN, "data"),
     )(store_guarded(render, n, down))
     app.callback(
-        *[Output(c, p, allow_duplicate=True) for c, p in PANEL_OUTPUTS],
+        *[Output(c, p, allow_duplicate=True) for c, p in PANEL_OUTPUTS.values()],
         Input(ids.POLL, "n_intervals"),
         State(ids.RUN_ID, "data"),
         State(ids.FIGURE_RUN, "data"),

@@ -60,7 +60,7 @@ def _changepoint_dynamic(series, snapshot):
         text = (f"change date {j + 1}: median {label_date(cp['median_date'])}"
                 if cp.get("median_date") else f"change date {j + 1}")
         if cp.get("q05_date") and cp.get("q95_date"):
-            text += f"<br>90% credible interval {label_date(cp['q05_date'])} to {label_date(cp['q95_date'])}"
+            text += f"<br>90% interval {label_date(cp['q05_date'])} to {label_date(cp['q95_date'])}"
         medians.append({"x": [mx, mx], "y": [0, 1], "hovertext": [text, text]})
     return bars, medians
 

@@ -15,7 +15,7 @@ from .common import (band_x, empty_figure, has_fit, num, nums, parse_date, statu
 
 WEEKDAY_HEIGHT = 360
 WEEKDAY_NOTE = ("Dashed line at 1: an average day, no weekday effect.<br>"
-                "Whiskers: 90% credible intervals.")
+                "Whiskers: 90% intervals.")
 
 RESIDUAL_SUBTITLE = ("About 90% is expected. Points beyond the dotted lines<br>"
                      "(±2 sd from the prediction) surprised the model.")
@@ -31,7 +31,7 @@ RESIDUAL_STATUS_ANNOTATION = 0
 # ------------------------------------------------------------------ weekday
 
 def weekday_figure(snapshot):
-    """Day-of-week reporting factors with 90% credible intervals.
+    """Day-of-week reporting factors with 90% intervals.
 
     Parameters
     ----------
@@ -59,7 +59,7 @@ def weekday_figure(snapshot):
     hi = [num(d.get("q95")) for d in days]
     up = [None if h is None or m is None else h - m for h, m in zip(hi, med)]
     down = [None if m is None or low is None else m - low for m, low in zip(med, lo)]
-    hover = [f"{n}: counts × {m:.2f} (90% credible interval {a:.2f} to {b:.2f})"
+    hover = [f"{n}: counts × {m:.2f} (90% interval {a:.2f} to {b:.2f})"
              if None not in (m, a, b) else n for n, m, a, b in zip(names, med, lo, hi)]
     trace = go.Scatter(
         name="day-of-week factor", x=short, y=med, mode="markers",

@@ -15,6 +15,8 @@ import textwrap
 
 import plotly.graph_objects as go
 
+from inference.wording import verdict_of
+
 from .. import theme as th
 
 MS_PER_DAY = 86_400_000
@@ -22,7 +24,7 @@ MONTHS = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", 
 WEEKDAYS = ("Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun")
 
 PROVISIONAL_NOTE = "Provisional: sampling in progress, not yet converged"
-NOT_CONVERGED_NOTE = "Not converged: do not report"
+NOT_CONVERGED_NOTE = "Not reportable: do not report"
 NO_FIT_NOTE = "No model fit yet: showing the data only"
 
 #: Height of an empty panel (px) unless told otherwise.
@@ -47,40 +49,6 @@ def num(v):
 def nums(values):
     """:func:`num` of each value (None stays None)."""
     return [num(v) for v in (values or [])]
-
-
-def pct_per_day(r):
-    """Percent change per day of a continuous growth rate r (per day)."""
-    r = num(r)
-    return None if r is None else 100.0 * (math.exp(r) - 1.0)
-
-
-def fmt_pct(p):
-    """A signed percentage for display: two decimals below 10, one above."""
-    if p is None:
-        return "–"
-    return f"{p:+.2f}" if abs(p) < 10 else f"{p:+.1f}"
-
-
-def fmt_days(d, decimals=None):
-    """Days for display: one decimal below 10 days, whole days above (or as told)."""
-    if d is None:
-        return None
-    if decimals is None:
-        decimals = 1 if d < 10 else 0
-    return f"{d:,.{decimals}f}"
-
-
-def fmt_prob(p):
-    """A probability as "> 99%", "74%" or "< 1%"."""
-    p = num(p)
-    if p is None:
-        return "–"
-    if p >= 0.995:
-        return "> 99%"
-    if p <= 0.005:
-        return "< 1%"
-    return f"{100 * p:.0f}%"
 
 
 def ordinal(n):
@@ -201,7 +169,7 @@ def change_colour(j):
 
 
 def is_final(snapshot):
-    """True when the snapshot is the last of a run and its diagnostics converged.
+    """True when the snapshot is the last of a run and the engine's verdict says reportable.
 
     Parameters
     ----------
@@ -213,8 +181,7 @@ def is_final(snapshot):
     """
     if not snapshot or snapshot.get("phase") != "done":
         return False
-    diag = snapshot.get("diagnostics") or {}
-    return bool(diag.get("converged"))
+    return verdict_of(snapshot.get("diagnostics"))[0]
 
 
 def status_note(snapshot):

@@ -27,12 +27,12 @@ MAIN_TRACES = (
     "predictive_high",  # 1  upper edge, filled down to 0
     "counts",  # 2  reported counts (bars or points)
     "average_7day",  # 3  7-day centred average (empty for weekly series)
-    "trend_low",  # 4  trend 90% credible interval, lower edge
+    "trend_low",  # 4  trend 90% interval, lower edge
     "trend_high",  # 5  upper edge, filled down to 4
     "trend_median",  # 6  trend posterior median
     "projection_predictive_low",  # 7  if the trend continues: predictive lower edge
     "projection_predictive_high",  # 8  upper edge, filled down to 7
-    "projection_low",  # 9  if the trend continues: trend 90% credible interval, lower
+    "projection_low",  # 9  if the trend continues: trend 90% interval, lower
     "projection_high",  # 10 upper edge, filled down to 9
     "projection_median",  # 11 trend median, dashed
     "change_date_intervals",  # 12 posterior change dates: 90% intervals (top strip)
@@ -268,12 +268,12 @@ def main_figure(series, snapshot=None, changepoints=(), *, log_y=False, style="b
                                hoverinfo="skip", line={"color": th.AVERAGE_LINE, "width": th.LINE_THIN})
     traces[4] = go.Scatter(name="trend interval, lower edge", legendgroup="trend_band", **skip, **dyn[4])
     traces[5] = go.Scatter(
-        name="trend: 90% credible interval", legendgroup="trend_band", mode="lines", line={"width": 0},
+        name="trend: 90% interval", legendgroup="trend_band", mode="lines", line={"width": 0},
         fill="tonexty", fillcolor=th.TREND_BAND, hoverinfo="skip", legendrank=410, **dyn[5])
     traces[6] = go.Scatter(
         name="trend: posterior median", mode="lines", line={"color": th.TREND_LINE, "width": th.LINE_STRONG},
         hovertemplate="trend: %{y:,.1f} per " + per
-                      + " (90% credible interval %{customdata[0]:,.1f} to %{customdata[1]:,.1f})<extra></extra>",
+                      + " (90% interval %{customdata[0]:,.1f} to %{customdata[1]:,.1f})<extra></extra>",
         legendrank=400, **dyn[6])
     traces[7] = go.Scatter(name="if the current trend continues: predictive lower edge",
                            legendgroup="projection", **skip, **dyn[7])
@@ -287,17 +287,17 @@ def main_figure(series, snapshot=None, changepoints=(), *, log_y=False, style="b
     traces[9] = go.Scatter(name="if the current trend continues: trend lower edge",
                            legendgroup="projection", **skip, **dyn[9])
     traces[10] = go.Scatter(
-        name="if the current trend continues: trend, 90% credible interval", legendgroup="projection",
+        name="if the current trend continues: trend, 90% interval", legendgroup="projection",
         showlegend=False, mode="lines", line={"width": 0}, fill="tonexty", fillcolor=th.PROJECTION_BAND,
         hoverinfo="skip", **dyn[10])
     traces[11] = go.Scatter(
         name="if the current trend continues (median, 90% intervals)", legendgroup="projection",
         mode="lines", line={"color": th.PROJECTION_LINE, "width": th.LINE_STRONG, "dash": "dash"},
         hovertemplate="if the current trend continues: trend %{y:,.1f} per " + per
-                      + " (90% credible interval %{customdata[0]:,.1f} to %{customdata[1]:,.1f})<extra></extra>",
+                      + " (90% interval %{customdata[0]:,.1f} to %{customdata[1]:,.1f})<extra></extra>",
         legendrank=500, **dyn[11])
     traces[12] = go.Scatter(
-        name="estimated change date: 90% credible interval", legendgroup="change_dates", showlegend=False,
+        name="estimated change date: 90% interval", legendgroup="change_dates", showlegend=False,
         yaxis="y2", mode="lines", line={"color": th.CHANGE_DATE_INTERVAL, "width": th.LINE},
         hoverinfo="skip", cliponaxis=False, **dyn[12])
     traces[13] = go.Scatter(
@@ -305,7 +305,7 @@ def main_figure(series, snapshot=None, changepoints=(), *, log_y=False, style="b
         mode="markers+text", textposition="top center", cliponaxis=False,
         textfont={"size": th.SMALL_SIZE, "color": th.INK},
         hovertemplate="estimated change date %{customdata[0]}: %{customdata[1]}"
-                      "<br>90% credible interval %{customdata[2]} to %{customdata[3]}<extra></extra>",
+                      "<br>90% interval %{customdata[2]} to %{customdata[3]}<extra></extra>",
         legendrank=800, **dyn[13])
 
     uirev = f"main|{series.get('name')}|{series.get('start')}|{step}|{len(values)}"

@@ -2,7 +2,7 @@
 
 Each row stacks, from the top: the segment's label ("▲ Segment 1: 5 Jan –
 19 Mar"), two lines of text (doubling or halving time; P(growing) and R),
-then the 90% credible interval of the growth rate as a bar with the median
+then the 90% interval of the growth rate as a bar with the median
 marked, across the panel's full width. Nothing sits beside the interval, so
 the text never competes with the plot for width, and every line is short
 enough for a 360 px column.
@@ -22,8 +22,9 @@ import math
 import plotly.graph_objects as go
 
 from .. import theme as th
-from .common import (empty_figure, fmt_days, fmt_pct, fmt_prob, label_date, num, parse_date,
-                     pct_per_day, status_badge, status_note)
+from inference.wording import INTERVAL, direction_of, fmt_pct, fmt_prob, growth_block, time_text, unit_of
+
+from .common import empty_figure, label_date, num, parse_date, status_badge, status_note
 
 #: Height of one segment's row (px): label, two lines of text, the interval bar.
 ROW_PX = 104
@@ -35,23 +36,7 @@ _BOTTOM_PX = 100  # x axis, its title and the two-line key
 _KEY_SHIFT = 56  # px below the plot area to the key
 
 _SYMBOL_TEXT = {"triangle-up": "▲", "triangle-down": "▼", "circle": "●"}
-KEY_TEXT = "▲ growing · ▼ shrinking · ● unclear (includes 0)<br>Bars and brackets: 90% credible intervals."
-
-
-def _time_text(kind, summary):
-    """'doubling every 12 days (9–17)' from a doubling/halving summary (days)."""
-    med, lo, hi = (num(summary.get(k)) for k in ("median", "q05", "q95"))
-    if med is None:
-        return f"no clear {kind}"
-    dec = 1 if med < 10 else 0  # one precision for the median and its interval
-    text = f"{kind} every {fmt_days(med, dec)} days"
-    if lo is not None and hi is not None:
-        return text + f" ({fmt_days(lo, dec)}–{fmt_days(hi, dec)})"
-    if lo is not None:  # the slow end is unbounded: the interval reaches no doubling/halving
-        return text + f" (> {fmt_days(lo, dec)}, or no {kind})"
-    if hi is not None:
-        return text + f" (< {fmt_days(hi, dec)})"
-    return text + " (interval unbounded)"
+KEY_TEXT = "▲ growing · ▼ falling · ● flat or uncertain<br>Bars: 90% intervals."
 
 
 def growth_text(segment):
@@ -65,15 +50,14 @@ def growth_text(segment):
     Returns
     -------
     (str, str)
-        Doubling or halving time with its 90% interval in days
-        ("doubling every 12 days (9–17)"; an unbounded side as
-        "(> 25, or no doubling)"), and P(growing) with R when present
+        Doubling or halving time with its 90% interval in days, worded as
+        everywhere else (:func:`inference.wording.time_text`), and P(growing) with R when present
         ("P(growing) 97% · R 1.23 (1.18–1.29)").
     """
     if segment.get("doubling_time_days"):
-        first = _time_text("doubling", segment["doubling_time_days"])
+        first = time_text("doubling", segment["doubling_time_days"])
     elif segment.get("halving_time_days"):
-        first = _time_text("halving", segment["halving_time_days"])
+        first = time_text("halving", segment["halving_time_days"])
     else:
         first = "no clear doubling or halving"
     second = f"P(growing) {fmt_prob(segment.get('prob_growing'))}"
@@ -130,12 +114,14 @@ def segment_label(segment, *, with_year=False, last=False, series_end=None, inte
     return f"Segment {segment['index']}: {label_date(start, with_year)} – {label_date(end, with_year)}"
 
 
-def _rate_class(lo, hi):
-    if lo is not None and lo > 0:
-        return "growing", th.GROWING, "triangle-up"
-    if hi is not None and hi < 0:
-        return "shrinking", th.SHRINKING, "triangle-down"
-    return "unclear", th.UNCLEAR, "circle"
+def _rate_class(segment):
+    """(direction word, colour, marker) from the engine's direction of a segment."""
+    how = direction_of(segment)
+    if how == "growing":
+        return how, th.GROWING, "triangle-up"
+    if how == "falling":
+        return how, th.SHRINKING, "triangle-down"
+    return how, th.UNCLEAR, "circle"
 
 
 def _row_text(i, text, shift, size, name):
@@ -145,13 +131,14 @@ def _row_text(i, text, shift, size, name):
 
 
 def rates_figure(snapshot, *, highlight_segment=None):
-    """Growth rate of each segment as % change per day, with its 90% credible interval.
+    """Growth rate of each segment as % change per day (per week for weekly series), with its 90% interval.
 
     One row per segment (segment 1 at the top): a label line, the doubling
     or halving time, P(growing) and R when present, then a horizontal bar
-    spanning the 90% credible interval with a marker at the median (▲
-    vermillion: the interval is above zero; ▼ blue: below zero; ● grey: it
-    includes zero). See the module's docstring for the geometry.
+    spanning the 90% interval with a marker at the median, shaped and
+    coloured by the engine's direction (▲ vermillion: growing; ▼ blue:
+    falling; ● grey: flat or uncertain). See the module's docstring for the
+    geometry.
 
     Parameters
     ----------
@@ -177,20 +164,21 @@ def rates_figure(snapshot, *, highlight_segment=None):
     with_year = len(years) > 1
     bar_y = [i - 0.5 + (_TEXT_PX + (ROW_PX - _TEXT_PX) / 2) / ROW_PX for i in range(n)]
     base, width, med, colours, symbols, custom, hover, notes, covers = [], [], [], [], [], [], [], [], []
+    unit = unit_of(snapshot)
     for i, s in enumerate(segments):
-        g = s.get("growth_rate_per_day") or {}
-        lo, m, hi = pct_per_day(g.get("q05")), pct_per_day(g.get("median")), pct_per_day(g.get("q95"))
+        g = growth_block(s, unit)
+        lo, m, hi = num(g.get("q05")), num(g.get("median")), num(g.get("q95"))
         label = segment_label(s, with_year=with_year, last=i == n - 1, **where)
         bold = highlight_segment is not None and s.get("index") == highlight_segment
-        kind, colour, symbol = _rate_class(lo, hi)
+        kind, colour, symbol = _rate_class(s)
         base.append(lo)
         width.append(None if lo is None or hi is None else hi - lo)
         med.append(m)
         colours.append(colour)
         symbols.append(symbol)
         custom.append([s.get("index", i + 1)])
-        hover.append(f"{label}<br>growth rate {fmt_pct(m)}% per day "
-                     f"(90% credible interval {fmt_pct(lo)} to {fmt_pct(hi)}); {kind}")
+        hover.append(f"{label}<br>growth rate {fmt_pct(m)} per {unit} "
+                     f"({INTERVAL} {fmt_pct(lo)} to {fmt_pct(hi)}); {kind}")
         first, second = growth_text(s)
         fill = th.HIGHLIGHT_SOLID if bold else th.WHITE
         notes.append(_row_text(
@@ -203,7 +191,7 @@ def rates_figure(snapshot, *, highlight_segment=None):
                        "fillcolor": fill, "line": {"width": 0}, "layer": "above"})
     traces = [
         go.Bar(
-            name="90% credible interval", orientation="h", y=bar_y, x=width, base=base,
+            name=INTERVAL, orientation="h", y=bar_y, x=width, base=base,
             width=_BAR_PX / ROW_PX,
             marker={"color": [th.rgba(c, 0.55) for c in colours], "line": {"color": colours, "width": 1}},
             customdata=custom, hovertext=hover, hoverinfo="text", showlegend=False),
@@ -231,7 +219,7 @@ def rates_figure(snapshot, *, highlight_segment=None):
         height=top + _BOTTOM_PX + ROW_PX * n,
         margin={"l": 16, "r": 16, "t": top, "b": _BOTTOM_PX},
         bargap=0,
-        xaxis={"title": {"text": "Growth rate (% change per day)"}, "rangemode": "tozero", "ticksuffix": "%",
+        xaxis={"title": {"text": f"Growth rate (% change per {unit})"}, "rangemode": "tozero", "ticksuffix": "%",
                "zeroline": False, "fixedrange": True},
         yaxis={"range": [n - 0.5, -0.5], "autorange": False, "visible": False, "fixedrange": True,
                "showgrid": False},

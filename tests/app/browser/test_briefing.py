@@ -135,12 +135,14 @@ def test_briefing_view_of_a_finished_fit_and_its_exports(demo, page, browser, tm
     result = json.loads(resp.text())
 
     pg, (errors, failed) = open_brief(page, demo, run_id, SIZES[0])
-    converged = result["diagnostics"]["converged"]
-    assert text_of(pg, "#brief-badge") == ("Converged" if converged else "Not converged: do not report")
+    ok = result["diagnostics"]["reportable"]
+    assert text_of(pg, "#brief-badge") == ("Reportable" if ok else "Not reportable: do not report these numbers")
+    for w in result["diagnostics"]["warnings"]:  # the verdict's reasons, beside the numbers
+        assert w["message"] in text_of(pg, "#brief-warnings")
     assert wording.fmt_date(result["series"]["end"]) in text_of(pg, "#brief-title")
     assert result["series"]["name"] in text_of(pg, "#brief-title")
     check_headline_is_the_results(pg, result)
-    assert text_of(pg, "#brief-summary").endswith(wording.summary_sentence(result))
+    assert text_of(pg, "#brief-summary").endswith(result["summary_text"])
     assert "if the current trend continues" in text_of(pg, "#brief-main-chart")
     wait_for_graph(pg, "#brief-rates-chart")
     footer = text_of(pg, "#brief-footer")
@@ -227,8 +229,8 @@ def test_briefing_view_of_a_running_fit_is_provisional_and_follows_it(demo, page
     wait_for(lambda: shown_headline(pg) == [tuple(s) for s in wording.headline_stats(result)],
              "the result's numbers", 30)
     check_headline_is_the_results(pg, result)
-    if not result["diagnostics"]["converged"]:
-        assert text_of(pg, "#brief-badge") == "Not converged: do not report"
+    if not result["diagnostics"]["reportable"]:
+        assert text_of(pg, "#brief-badge") == "Not reportable: do not report these numbers"
         assert pg.locator(".brief-withheld").count() == 1
     pg.screenshot(path=str(tmp_path / "brief-stopped-1280x800.png"))
 

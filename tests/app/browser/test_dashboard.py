@@ -31,7 +31,7 @@ def wait_text(page, selector, pattern, timeout=60.0):
 
 def trend_points(page):
     data = graph_data(page) or []
-    band = [t for t in data if t["name"] and "credible interval" in t["name"]]
+    band = [t for t in data if t["name"] and "trend: 90% interval" in t["name"]]
     return band[0]["nonnull"] if band else 0
 
 
