@@ -275,7 +275,7 @@ class SegmentComparison:
 
     def state(self, compare_id):
         """(record, support list or None): finishes the comparison when all members are done."""
-        from inference.compare import support_from_fits
+        from inference.compare import change_probability, support_from_fits
 
         rec = self.runs.get(compare_id)
         if rec is None or rec.get("kind") != "compare":
@@ -305,9 +305,17 @@ class SegmentComparison:
             return self.runs.get(compare_id), None
         for row in support:
             row.pop("pointwise", None)
-        self.runs.store.put_result(compare_id, {"segment_support": support})
-        rec = self.runs.store.update_run(compare_id, status="converged", finished_at=now_iso())
+        self.runs.store.put_result(compare_id, {"segment_support": support,
+                                                "change_probability": change_probability(fits, support)})
+        all_converged = all(s.get("converged") for s in support if s.get("feasible"))
+        rec = self.runs.store.update_run(compare_id, status="converged" if all_converged else "unconverged",
+                                         finished_at=now_iso())
         return rec, support
+
+    def change_probability(self, compare_id):
+        """The finished comparison's change probability averaged over K, or None."""
+        done = self.runs.result(compare_id)
+        return (done or {}).get("change_probability")
 
 
 class QueueUnavailable(RuntimeError):

@@ -11,11 +11,16 @@ Prints, from one run on this machine:
   Roberts, Gelman & Gilks 1997) on the same posterior, and the ratio;
 * a 10-year daily series with K = 8.
 
+* real hard cases (bench/cases.py): coal-mining disasters with a continuous
+  trend and jumps and as level shifts, daily_admissions.csv with K = 4 and
+  K = 6, the 1854 cholera outbreak; and forty invented regions through
+  ``bendline batch``.
+
 Each case runs in its own process so peak memory (max RSS) is its own.
 Targets (2 cores): converged <= 3 s, >= 1000 min-ESS/s, >= 5x the baseline,
 peak memory <= 300 MB, 10-year K = 8 converged <= 30 s.
 
-Usage:  python bench/engine.py [--repeats N]
+Usage:  python bench/engine.py [--repeats N] [--blocks reference,hard,regions]
 """
 
 from __future__ import annotations
@@ -35,31 +40,10 @@ import numpy as np
 BASELINE_BUDGET = 300.0  # seconds; a baseline still unconverged then gives a lower bound on the ratio
 ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
 sys.path.insert(0, ROOT)
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 
-def reference_problem():
-    """365 invented daily values, K = 4, negative binomial, weekday effect."""
-    from inference.simulate import simulate
-
-    rng = np.random.default_rng(365)
-    return simulate(
-        rng, "2025-01-06", 365, start_level=30.0,
-        knot_days=[80.0, 170.0, 290.0], growth_rate_per_day=[0.03, -0.022, 0.012, 0.004],
-        weekday_effect=[1.1, 1.2, 1.05, 1.0, 0.95, 0.75, 0.75], dispersion=25.0,
-    )[0], 4
-
-
-def ten_year_problem():
-    """3650 invented daily values, K = 8."""
-    from inference.simulate import simulate
-
-    rng = np.random.default_rng(3650)
-    knots = [400.0, 800.0, 1300.0, 1700.0, 2200.0, 2700.0, 3200.0]
-    rates = [0.004, -0.006, 0.005, -0.003, 0.004, -0.005, 0.003, -0.002]
-    return simulate(
-        rng, "2016-01-04", 3650, start_level=40.0, knot_days=knots, growth_rate_per_day=rates,
-        weekday_effect=[1.1, 1.2, 1.05, 1.0, 0.95, 0.75, 0.75], dispersion=30.0,
-    )[0], 8
+from cases import HARD_CASES, reference_problem, ten_year_problem, write_regions  # noqa: E402
 
 
 def run_bendline(which, seed=11):
@@ -176,11 +160,55 @@ def run_throughput(seed=11):
             "chains": final["chains"], "draws_per_chain": final["draws_per_chain"], "timings": final["timings"]}
 
 
+def run_hard(name, seed=1):
+    """One real hard case, as `bendline fit` runs it (default settings, the series' defaults)."""
+    from inference.fitting import fit_result
+
+    build, options = HARD_CASES[name]
+    series = build()
+    t0 = time.perf_counter()
+    result, final = fit_result(series, dict(options, seed=seed, snapshot_summaries=False))
+    seconds = time.perf_counter() - t0
+    d = result["diagnostics"]
+    ess = min(d["ess_bulk_min"] or 0.0, d["ess_tail_min"] or 0.0)
+    engine = final["timings"]["total_seconds"]
+    return {"converged": d["converged"], "reportable": d["reportable"], "seconds": seconds,
+            "engine_seconds": engine, "min_ess": ess, "min_ess_per_s": ess / engine, "rhat_max": d["rhat_max"],
+            "chains": d["chains"], "draws_per_chain": d["draws_per_chain"],
+            "far_relocations": final["sampler"].get("far_relocation_rate"),
+            "warnings": sorted({w["kind"] for w in d["warnings"]})}
+
+
+def run_regions(workers=2):
+    """40 invented regions through `bendline batch` in one process tree: converged and reportable counts, wall."""
+    import csv
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as tmp:
+        path = os.path.join(tmp, "regions.csv")
+        write_regions(path)
+        out = os.path.join(tmp, "fits")
+        t0 = time.perf_counter()
+        proc = subprocess.run([sys.executable, "-m", "app.cli", "batch", path, "--by", "region", "--out-dir", out,
+                               "--workers", str(workers), "--quiet"], cwd=ROOT, capture_output=True, text=True)
+        seconds = time.perf_counter() - t0
+        with open(os.path.join(out, "summary.csv"), encoding="utf-8-sig") as fh:
+            rows = list(csv.DictReader(fh))
+    return {"regions": len(rows), "converged": sum(r["converged"] == "true" for r in rows),
+            "reportable": sum(r["reportable"] == "true" for r in rows), "seconds": seconds,
+            "exit": proc.returncode,
+            "not_reportable": [(r["region"], r["message"][:120]) for r in rows if r["reportable"] != "true"]}
+
+
 def child(which, seed):
     if which == "baseline":
         res = run_baseline(seed)
     elif which == "throughput":
         res = run_throughput(seed)
+    elif which.startswith("hard:"):
+        res = run_hard(which[5:], seed)
+    elif which == "regions":
+        res = run_regions()
     else:
         res = run_bendline(which, seed)
     res["peak_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
@@ -195,15 +223,45 @@ def spawn(which, seed):
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
+def hard_block(repeats):
+    """Real hard cases, each in its own process, medians over seeds."""
+    print(f"Hard cases (real series; each fit as `bendline fit` runs it; {repeats} seeds, medians)")
+    for name in HARD_CASES:
+        runs = [spawn(f"hard:{name}", seed) for seed in range(1, repeats + 1)]
+        conv = sum(r["converged"] for r in runs)
+        rep = sum(r["reportable"] for r in runs)
+        med = lambda key: statistics.median(r[key] for r in runs)  # noqa: E731
+        each = ", ".join(f"{r['engine_seconds']:.1f}" for r in runs)
+        print(f"  {name}: converged {conv}/{len(runs)}, reportable {rep}/{len(runs)}; engine seconds "
+              f"{med('engine_seconds'):.2f} (runs {each}); "
+              f"process {med('seconds'):.2f} s; min-ESS/s {med('min_ess_per_s'):.0f}; "
+              f"draws/chain {med('draws_per_chain'):.0f}; far relocations {runs[0]['far_relocations']}; "
+              f"warnings {sorted({w for r in runs for w in r['warnings']})}")
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--child")
     ap.add_argument("--seed", type=int, default=11)
     ap.add_argument("--repeats", type=int, default=3)
     ap.add_argument("--skip-ten-year", action="store_true")
+    ap.add_argument("--blocks", default="reference,hard,regions",
+                    help="comma-separated: reference (with baseline and throughput), hard, regions")
     args = ap.parse_args()
     if args.child:
         child(args.child, args.seed)
+        return
+    blocks = set(args.blocks.split(","))
+    if "hard" in blocks:
+        hard_block(args.repeats)
+    if "regions" in blocks:
+        r = spawn("regions", 0)
+        print(f"Forty invented regions (365 d, K=3, negbin, weekday) through `bendline batch --workers 2`: "
+              f"{r['converged']}/{r['regions']} converged, {r['reportable']}/{r['regions']} reportable, "
+              f"{r['seconds']:.1f} s wall (exit {r['exit']})")
+        for region, why in r["not_reportable"]:
+            print(f"    {region}: {why}")
+    if "reference" not in blocks:
         return
     rows = {"reference": [], "baseline": [], "throughput": [], "ten_year": []}
     for i in range(args.repeats):

@@ -48,7 +48,7 @@ MAX_LEAPFROG = 256
 #: where the posterior has one mode it is insurance, where it has several it
 #: is what mixes them. Measured in bench/engine.py.
 RELOCATE_WARMUP = 6
-RELOCATE_MULTIMODAL = 2
+RELOCATE_MULTIMODAL = 1
 RELOCATE_UNIMODAL = 25
 #: Share of relocations in warm-up that moved a change date more than a tenth
 #: of the series, above which sampling relocates often (common practice, no

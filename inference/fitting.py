@@ -17,7 +17,8 @@ from .sinks import MemorySink
 from .spec import spec_from_options
 
 
-def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None, segment_support=None):
+def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None, segment_support=None,
+               change_probability=None):
     """Fit ``series`` with the flat ``options`` and return the JSON result.
 
     Parameters
@@ -32,6 +33,8 @@ def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None
         Polled every iteration.
     segment_support : list, optional
         A segment-count comparison to include.
+    change_probability : dict, optional
+        Its change probability averaged over K (:func:`inference.compare.change_probability`).
 
     Returns
     -------
@@ -50,7 +53,8 @@ def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None
         return None, final
     rng = np.random.default_rng(np.random.SeedSequence(settings.seed).spawn(4)[3])
     result = build_result(
-        model, settings, final, positions, rng, options=options, segment_support=segment_support
+        model, settings, final, positions, rng, options=options, segment_support=segment_support,
+        change_probability=change_probability,
     )
     # one verdict: the run's status and the final snapshot follow the result's
     # diagnostics on every draw (the run's own checks thin them)

@@ -61,7 +61,8 @@ def assumptions(model):
     return lines
 
 
-def build_result(model, settings, final, positions, rng, *, options=None, segment_support=None):
+def build_result(model, settings, final, positions, rng, *, options=None, segment_support=None,
+                 change_probability=None):
     """Assemble the JSON result.
 
     Parameters
@@ -76,7 +77,10 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
     options : dict, optional
         The options as given (CLI flags, API spec); defaults to the full spec.
     segment_support : list of dict, optional
-        From :func:`inference.compare.segment_support`.
+        From :func:`inference.compare.support_from_fits`.
+    change_probability : dict, optional
+        From :func:`inference.compare.change_probability`: stored beside the
+        change-date histograms as ``averaged_over_segments``.
 
     Returns
     -------
@@ -148,4 +152,6 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
     result["summary_text"] = summary_sentence(result)
     if segment_support is not None:
         result["segment_support"] = segment_support
+    if change_probability is not None:
+        result["changepoint_histograms"]["averaged_over_segments"] = change_probability
     return result

@@ -79,7 +79,12 @@ class Progress:
         positions : numpy.ndarray, shape (chains, draws, dim)
         """
         names, values = summaries.reported_quantities(self.model, positions)
-        return diagnose(names, _thin(values, DIAGNOSTIC_DRAWS)), _traces(names, values)
+        diag = diagnose(names, _thin(values, DIAGNOSTIC_DRAWS))
+        if diag["converged"] and values.shape[1] > DIAGNOSTIC_DRAWS:
+            # the thinned draws pass: confirm on every draw, as the result will
+            # judge them, so a run never stops on a check its result then fails
+            diag = diagnose(names, values)
+        return diag, _traces(names, values)
 
     def snapshot(self, phase, iteration, warmup, positions=None, eps=None, T=None,
                  diagnostics=None, traces=None, diagnostics_at=None):

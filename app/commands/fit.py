@@ -84,16 +84,16 @@ def run_fit(args):
             interval=args.interval,
         )
         options = options_from_args(args, series)
-        support = None
+        support = averaged = None
         if args.compare_segments:
             from inference.compare import compare_segments
 
             progress = None if args.quiet else sys.stderr
-            support = compare_segments(series, options, log=progress)
+            support, averaged = compare_segments(series, options, log=progress)
         progress = None if args.quiet else ProgressLine()
         # nobody watches the panels of a headless fit: snapshots carry counters only
         result, final = fit_result(series, dict(options, snapshot_summaries=False), on_snapshot=progress,
-                                   segment_support=support)
+                                   segment_support=support, change_probability=averaged)
         result["spec"].pop("snapshot_summaries", None)
     except InputError as exc:
         sys.stderr.write(f"bendline fit: {exc}\n")

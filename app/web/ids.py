@@ -31,6 +31,7 @@ COMPARE_ID = "compare-id"
 COMPARE_POLL = "compare-poll"
 COMPARE_STATUS = "compare-status"
 COMPARE_FIG = "compare-chart"
+COMPARE_STRIP = "compare-strip"  # {edges_day, probability, weights, series_hash}: P(change) averaged over K
 ADOPT = "adopt-segments"
 
 # model and priors

@@ -71,6 +71,7 @@ def changepoint_section():
             html.Button("How many segments?", id=ids.COMPARE, className="btn", n_clicks=0,
                         title="Fit 1 to 6 segments and compare them by PSIS-LOO"),
             dcc.Store(id=ids.COMPARE_ID, data=None),
+            dcc.Store(id=ids.COMPARE_STRIP, data=None),
             dcc.Interval(id=ids.COMPARE_POLL, interval=1500, disabled=True),
             html.Div(id=ids.COMPARE_STATUS, className="field-hint", **{"aria-live": "polite"}),
             html.Div(id=ids.COMPARE_FIG),

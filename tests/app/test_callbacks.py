@@ -153,10 +153,10 @@ def test_poll_sets_controls_and_trace_picker_only_when_they_change(app):
         assert fresh[PO] is True and fresh[ST]["controls"] == out[PO:PO + 4]
         # the picker's value, set by a poll to what the state holds, does not redraw everything
         trigger(f"{ids.TRACE_PARAM}.value", param)
-        skipped = panels.render(key, [], "bars", "linear", None, run_id, param, state)
+        skipped = panels.render(key, [], "bars", "linear", None, run_id, param, state=state)
         assert all(v is no_update for v in skipped)
         other = next(n for n in state["trace_names"] if n != param)
-        redrawn = panels.render(key, [], "bars", "linear", None, run_id, other, state)
+        redrawn = panels.render(key, [], "bars", "linear", None, run_id, other, state=state)
         assert redrawn[5] == other and redrawn[ST]["trace_param"] == other
 
 
@@ -213,15 +213,15 @@ def test_a_new_run_on_blank_panels_patches_the_main_chart_only(app):
         svc.store.update_run(run_id, status="running")
         svc.store.put_snapshot(run_id, _load("snapshot_00_init"))  # no band yet
         trigger(f"{ids.RUN_ID}.data", run_id)
-        out = panels.render(key, [], "bars", "linear", None, run_id, None, blank[ST])
+        out = panels.render(key, [], "bars", "linear", None, run_id, None, state=blank[ST])
         assert isinstance(out[0], Patch) and all(v is no_update for v in out[1:10])
         assert out[ST]["run"] == run_id and out[PO] is False  # polling starts
         # with a band already there, or over another run's panels, everything is drawn
         svc.store.put_snapshot(run_id, _load("snapshot_04_sampling"))
-        full = panels.render(key, [], "bars", "linear", None, run_id, None, blank[ST])
+        full = panels.render(key, [], "bars", "linear", None, run_id, None, state=blank[ST])
         assert not isinstance(full[0], Patch) and full[2] is not no_update
         svc.store.put_snapshot(run_id, _load("snapshot_00_init"))
-        over = panels.render(key, [], "bars", "linear", None, run_id, None, full[ST])
+        over = panels.render(key, [], "bars", "linear", None, run_id, None, state=full[ST])
         assert not isinstance(over[0], Patch)
 
 
@@ -293,7 +293,10 @@ def test_how_many_segments_compares_and_adopts(app):
         assert "The data support" in str(words)
         k = int(label.split()[1])
         assert 2 <= k <= 6
-        got_k, got_cps = segments.adopt(1, cid, cps)
+        got_k, got_cps, said = segments.adopt(1, cid, cps)
         assert got_k == k and got_cps == (cps if k == 2 else [])
+        assert f"Segments set to {k}" in said and (k == 2 or "change date was removed" in said)
+        averaged = segments.strip(True, cid)
+        assert len(averaged["probability"]) == 273 and averaged["series_hash"]
         # the member fits do not crowd the run list (no plain fits were made here)
         assert "No runs yet" in str(running.run_rows(0, 0, None))

@@ -42,11 +42,34 @@ def test_no_feasible_count_is_an_input_error():
 def test_two_segment_data_get_two_segments():
     series, _ = simulate(np.random.default_rng(31), "2026-01-05", 120, start_level=20.0,
                          knot_days=[60.0], growth_rate_per_day=[0.04, -0.04], dispersion=50.0)
-    out = compare_segments(series, {"family": "negbin", "weekday": False, "seed": 3}, ks=(1, 2, 3), workers=1)
+    out, averaged = compare_segments(series, {"family": "negbin", "weekday": False, "seed": 3}, ks=(1, 2, 3),
+                                     workers=1)
     rec = [o["segments"] for o in out if o["recommended"]]
     assert rec == [2]
     assert out[0]["elpd_diff"] > 20  # one segment cannot follow a rise and a fall
     assert out[0]["weight"] < 0.05
+    # the change probability averaged over K sums to the expected number of change dates
+    expected = sum(o["weight"] * (o["segments"] - 1) for o in out if o["weight"])
+    assert sum(averaged["probability"]) == pytest.approx(expected, rel=1e-3)
+    assert len(averaged["edges_day"]) == len(averaged["probability"]) + 1 == series.n + 1
+
+
+def _member(k, elpd, converged, pointwise):
+    return {"segments": k, "feasible": True, "elpd_loo": elpd, "se": 3.0, "p_loo": 4.0, "n_bad_k": 0,
+            "converged": converged, "pointwise": pointwise, "change_days": [0.0] * 5, "interval_days": 1}
+
+
+def test_an_unconverged_member_gets_no_weight_and_no_advice():
+    rng = np.random.default_rng(4)
+    base = rng.normal(-2.0, 0.3, 50)
+    fits = [_member(1, base.sum() - 30, True, list(base - 0.6)), _member(2, base.sum(), True, list(base)),
+            _member(3, base.sum() + 50, False, list(base + 1.0))]  # looks best, but did not converge
+    support = support_from_fits(fits)
+    k3 = support[2]
+    assert k3["weight"] is None and k3["elpd_diff"] is None and not k3["recommended"] and not k3["converged"]
+    assert "did not converge" in k3["note"]
+    assert [s["segments"] for s in support if s["recommended"]] == [2]
+    assert sum(s["weight"] for s in support if s["weight"]) == pytest.approx(1.0, abs=1e-3)
 
 
 def test_loo_of_a_real_fit_matches_arviz():

@@ -184,7 +184,14 @@ def _state(run_id, snapshot, counts, trace_param, marks=None):
             "banded": bool((snapshot or {}).get("band"))}
 
 
-def render(series_key, cps, style, scale, highlight, run_id, trace_param, state=None):
+def _strip_for(series, strip):
+    """The comparison's averaged change probability, when it belongs to the shown series."""
+    if isinstance(strip, dict) and series is not None and strip.get("series_hash") == series.content_hash():
+        return strip
+    return None
+
+
+def render(series_key, cps, style, scale, highlight, run_id, trace_param, strip=None, state=None):
     """Every panel, drawn from scratch.
 
     Skipped when the only change is the trace picker's value and it is the
@@ -212,7 +219,7 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, state=
         return _as_list(_start_run(sd, rec, snap, cps, highlight, run_id, state))
     log_y = scale == "log"
     main = F.main_figure(sd, snap, cps or [], log_y=log_y, style=style, highlight_segment=highlight)
-    hist = F.changepoint_figure(sd, snap, highlight_segment=highlight)
+    hist = F.changepoint_figure(sd, snap, highlight_segment=highlight, averaged=_strip_for(series, strip))
     options, trace_param = _trace_choice(snap, trace_param)
     trace = F.trace_figure(snap, trace_param)
     resid = F.residual_figure(snap)
@@ -297,7 +304,7 @@ def _marks(snapshot):
     }
 
 
-def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
+def poll(_n, run_id, state, series_key, cps, highlight, trace_param, strip=None):
     """Patch the panels with the run's newest snapshot (no-op when nothing changed).
 
     The main chart and the headline follow every snapshot. The other panels
@@ -350,11 +357,12 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param):
     secondary_at, diag_drawn_at = state.get("secondary_at"), state.get("diag_drawn_at")
     if draw_secondary:
         secondary_at = time.time()
-        hist_up = F.changepoint_updates(sd, snap)
+        averaged = _strip_for(series, strip)
+        hist_up = F.changepoint_updates(sd, snap, averaged)
         if hist_up["trace_count"] and hist_up["trace_count"] == counts.get("hist"):
             out["hist"] = to_patch(hist_up)
         else:
-            fig = F.changepoint_figure(sd, snap, highlight_segment=highlight)
+            fig = F.changepoint_figure(sd, snap, highlight_segment=highlight, averaged=averaged)
             out["hist"], counts["hist"] = fig, len(fig.data)
         if new["segments"] != old.get("segments"):
             out["rates"] = F.rates_figure(snap, highlight_segment=highlight)
@@ -436,6 +444,7 @@ def register(app):
         Input(ids.HIGHLIGHT, "data"),
         Input(ids.RUN_ID, "data"),
         Input(ids.TRACE_PARAM, "value"),
+        Input(ids.COMPARE_STRIP, "data"),
         State(ids.FIGURE_RUN, "data"),
     )(store_guarded(render, n, down))
     app.callback(
@@ -447,6 +456,7 @@ def register(app):
         State(ids.CHANGEPOINTS, "data"),
         State(ids.HIGHLIGHT, "data"),
         State(ids.TRACE_PARAM, "value"),
+        State(ids.COMPARE_STRIP, "data"),
         prevent_initial_call=True,
     )(store_guarded(poll, n, down))
     app.callback(

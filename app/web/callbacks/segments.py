@@ -42,9 +42,17 @@ def follow(_n, compare_id):
     best = next((s for s in support if s.get("recommended")), None)
     bad = [str(s["segments"]) for s in support if s.get("feasible") and not s.get("converged")]
     words = (f"The data support {best['segments']} segment{'s' if best['segments'] != 1 else ''}: the "
-             "fewest whose PSIS-LOO score is within 4 (or 2 standard errors) of the best.") if best else ""
+             "fewest whose PSIS-LOO score is within 4 (or 2 standard errors) of the best converged fit."
+             ) if best else "No fit converged, so no segment count can be advised; refit with more draws."
+    close = [s for s in support if s.get("elpd_diff") is not None and not s.get("recommended")
+             and s["elpd_diff"] < 2 * (s.get("se_diff") or 0) + 4]
+    if best and close:
+        words += (" Close behind (within the uncertainty): "
+                  + ", ".join(f"K = {s['segments']} ({s['elpd_diff']:.1f} ± {s['se_diff']:.1f} below)"
+                              for s in close) + ".")
     if bad:
-        words += f" Not converged: K = {', '.join(bad)}; read those scores with care."
+        words += (f" Did not converge, so not scored: K = {', '.join(bad)}; their scores take no part in "
+                  "the weights or the advice.")
     skipped = [f"K = {s['segments']} ({s.get('reason')})" for s in support if not s.get("feasible")]
     if skipped:
         words += " Not fitted: " + "; ".join(skipped) + "."
@@ -54,16 +62,32 @@ def follow(_n, compare_id):
 
 
 def adopt(n_clicks, compare_id, cps):
-    """Set the segment count to the recommendation (the change-date lines go if they disagree)."""
+    """Set the segment count to the recommendation; says so when the tentative change dates go."""
     if not n_clicks or not compare_id:
-        return no_update, no_update
+        return no_update, no_update, no_update
     _, support = SegmentComparison(services().runs).state(compare_id)
     best = next((s for s in support or [] if s.get("recommended")), None)
     if best is None:
-        return no_update, no_update
+        return no_update, no_update, no_update
     k = best["segments"]
-    cps = cps or []
-    return k, (cps if len(cps) == k - 1 else [])
+    cps = cps if isinstance(cps, list) else []
+    if len(cps) == k - 1 or not cps:
+        return k, cps, f"Segments set to {k}."
+    n = len(cps)
+    return k, [], (f"Segments set to {k}; the {n} tentative change date{'s were' if n != 1 else ' was'} removed "
+                   f"({k - 1} {'are' if k - 1 != 1 else 'is'} needed). Place {k - 1} again if you want them.")
+
+
+def strip(_n, compare_id):
+    """The finished comparison's change probability averaged over K, for the change-date panel."""
+    if not compare_id:
+        return None
+    comparison = SegmentComparison(services().runs)
+    rec, support = comparison.state(compare_id)
+    if rec is None or support is None:
+        return no_update
+    averaged = comparison.change_probability(compare_id)
+    return dict(averaged, series_hash=rec.get("series_hash")) if averaged else None
 
 
 def register(app):
@@ -80,6 +104,11 @@ def register(app):
     )(store_guarded(follow, 5, {0: lambda t: t}))
     app.callback(
         Output(ids.SEGMENTS, "value", allow_duplicate=True), Output(ids.CHANGEPOINTS, "data", allow_duplicate=True),
+        Output(ids.COMPARE_STATUS, "children", allow_duplicate=True),
         Input(ids.ADOPT, "n_clicks"), State(ids.COMPARE_ID, "data"), State(ids.CHANGEPOINTS, "data"),
         prevent_initial_call=True,
-    )(store_guarded(adopt, 2, {}))
+    )(store_guarded(adopt, 3, {2: lambda t: t}))
+    app.callback(
+        Output(ids.COMPARE_STRIP, "data"),
+        Input(ids.COMPARE_POLL, "disabled"), State(ids.COMPARE_ID, "data"), prevent_initial_call=True,
+    )(store_guarded(strip, 1, {}))

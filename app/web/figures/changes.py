@@ -12,6 +12,8 @@ from __future__ import annotations
 import plotly.graph_objects as go
 
 from .. import theme as th
+from inference.wording import fmt_prob
+
 from .common import (MS_PER_DAY, change_colour, day_to_x, default_x_range, empty_figure, has_fit,
                      highlight_shape, interval_of, label_date, num, nums, status_badge, status_note)
 
@@ -52,6 +54,20 @@ def _changepoint_dynamic(series, snapshot):
             widths.append((edges[b + 1] - edges[b]) * MS_PER_DAY)
         bars.append({"x": xs, "y": ys, "width": widths})
         cp = cps[j] if j < len(cps) else {}
+        modes = cp.get("modes") or []
+        if len(modes) > 1:  # separate modes: a marker at each, never a median between them
+            xs, ys, texts, sizes = [], [], [], []
+            for m in modes:
+                mx = day_to_x(series, num(m.get("median_day")) or 0.0)
+                text = (f"change date {j + 1}: around {label_date(m['median_date'])} "
+                        f"({fmt_prob(m.get('probability'))} of draws)<br>90% interval "
+                        f"{label_date(m['q05_date'])} to {label_date(m['q95_date'])}")
+                xs += [mx, mx, None]
+                ys += [0, 1, None]
+                texts += [text, text, ""]
+                sizes += [0, 12, 0]
+            medians.append({"x": xs, "y": ys, "hovertext": texts, "marker": _median_marker(j, sizes)})
+            continue
         med = num(cp.get("median_day"))
         if med is None:
             medians.append({"x": [], "y": [], "hovertext": []})
@@ -61,11 +77,28 @@ def _changepoint_dynamic(series, snapshot):
                 if cp.get("median_date") else f"change date {j + 1}")
         if cp.get("q05_date") and cp.get("q95_date"):
             text += f"<br>90% interval {label_date(cp['q05_date'])} to {label_date(cp['q95_date'])}"
-        medians.append({"x": [mx, mx], "y": [0, 1], "hovertext": [text, text]})
+        medians.append({"x": [mx, mx], "y": [0, 1], "hovertext": [text, text], "marker": _median_marker(j, [0, 12])})
     return bars, medians
 
 
-def changepoint_figure(series, snapshot, *, x_range=None, highlight_segment=None):
+def _median_marker(j, sizes):
+    return {"symbol": "diamond", "size": sizes, "color": change_colour(j), "line": {"color": th.INK, "width": 1}}
+
+
+def _averaged_trace(series, averaged):
+    """The change probability averaged over segment counts, as a step line (or None)."""
+    edges, prob = nums((averaged or {}).get("edges_day")), nums((averaged or {}).get("probability"))
+    if len(edges) < 2 or len(prob) != len(edges) - 1:
+        return None
+    xs, ys = [], []
+    for b, p in enumerate(prob):
+        xs += [day_to_x(series, edges[b]), day_to_x(series, edges[b + 1])]
+        ys += [p or 0.0, p or 0.0]
+    ks = ", ".join(sorted((averaged.get("weights") or {}), key=int))
+    return {"x": xs, "y": ys, "name": f"any change date, averaged over K = {ks} (stacking weights)"}
+
+
+def changepoint_figure(series, snapshot, *, x_range=None, highlight_segment=None, averaged=None):
     """Posterior distribution of each change date on a date axis matching the main chart.
 
     Parameters
@@ -80,12 +113,18 @@ def changepoint_figure(series, snapshot, *, x_range=None, highlight_segment=None
         as on the main chart.
     highlight_segment : int, optional
         1-based segment to shade.
+    averaged : dict, optional
+        A "How many segments?" comparison's change probability averaged over
+        K (``edges_day``, ``probability``, ``weights``): drawn as a black step
+        line, the last trace.
 
     Returns
     -------
     plotly.graph_objects.Figure
         Traces: one bar trace per change date ("change date 1", ...), then one
-        median marker line per change date (on a hidden 0-1 axis). An empty
+        median marker line per change date (on a hidden 0-1 axis; one marker
+        per mode when a change date has separate modes), then the averaged
+        line when given. An empty
         panel with a message before the first draws or with one segment. The
         status badge is ``layout.annotations[0]`` (hidden when final).
     """
@@ -108,9 +147,12 @@ def changepoint_figure(series, snapshot, *, x_range=None, highlight_segment=None
         traces.append(go.Scatter(
             name=f"change date {j + 1}: median", legendgroup=f"cp{j}", showlegend=False, yaxis="y2",
             mode="lines+markers", line={"color": change_colour(j), "width": th.LINE_THIN, "dash": "dot"},
-            marker={"symbol": "diamond", "size": [0, 12], "color": change_colour(j),
-                    "line": {"color": th.INK, "width": 1}},
             hoverinfo="text", cliponaxis=False, **m))
+    avg = _averaged_trace(series, averaged)
+    if avg is not None:
+        traces.append(go.Scatter(mode="lines", line={"color": th.INK, "width": th.LINE_THIN}, legendgroup="avg",
+                                 hovertemplate="%{y:.1%} in this " + word + ", averaged over the segment counts"
+                                               "<extra></extra>", **avg))
     layout = th.base_layout(
         height=HEIGHT,
         title={"text": TITLE},
@@ -130,7 +172,7 @@ def changepoint_figure(series, snapshot, *, x_range=None, highlight_segment=None
     return go.Figure(data=traces, layout=layout)
 
 
-def changepoint_updates(series, snapshot):
+def changepoint_updates(series, snapshot, averaged=None):
     """What changes in :func:`changepoint_figure` from one snapshot to the next.
 
     Parameters
@@ -150,5 +192,8 @@ def changepoint_updates(series, snapshot):
     n = len(bars)
     traces = {j: b for j, b in enumerate(bars)}
     traces.update({n + j: m for j, m in enumerate(medians)})
-    return {"trace_count": 2 * n, "traces": traces,
+    avg = _averaged_trace(series, averaged)
+    if avg is not None:
+        traces[2 * n] = {"x": avg["x"], "y": avg["y"]}
+    return {"trace_count": 2 * n + (avg is not None), "traces": traces,
             "annotations": {STATUS_ANNOTATION: status_badge(status_note(snapshot), yshift=6)}}
