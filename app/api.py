@@ -26,6 +26,7 @@ from werkzeug.exceptions import HTTPException
 
 from inference import reader
 from inference.errors import InputError
+from inference.options import check_public, engine_options
 
 from .runs import QueueUnavailable
 from .store import FINISHED, valid_run_id
@@ -91,7 +92,7 @@ def submit_run():
         options = _options_for_series(spec, series)
         user, _ = current_user()
         try:
-            rec = services().runs.submit(series, options, owner=user)
+            rec = services().runs.submit(series, options, owner=user, spec=check_public(spec))
         except InputError as exc:
             raise Refused.from_input_error(exc, source="spec") from None
     except Refused as exc:
@@ -344,44 +345,11 @@ def _split_loader_keys(spec, loader):
 
 
 def _options_for_series(spec, series):
-    """The engine's options: tentative change dates turned into days from the series start."""
-    options = dict(spec)
-    cps = options.get("changepoint_priors")
-    if isinstance(cps, list):
-        options["changepoint_priors"] = [_change_date_to_day(i, cp, series) for i, cp in enumerate(cps)]
-    return options
-
-
-def _change_date_to_day(i, cp, series):
-    """``{"date": "YYYY-MM-DD", "spread_days": s}`` -> ``{"day": d, "spread_days": s}``."""
-    if not isinstance(cp, dict) or "date" not in cp:
-        return cp  # {"day": ...} or malformed: the spec's own checks name the problem
-    where = {"source": "spec", "column": "changepoint_priors"}
-    if "day" in cp:
-        raise Refused(400, f"entry {i + 1} gives both 'date' and 'day'; give one", **where)
-    text = cp["date"]
-    date = None
-    if isinstance(text, str) and _ISO_DATE.match(text.strip()):
-        try:
-            date = _dt.date.fromisoformat(text.strip())
-        except ValueError:
-            date = None
-    if date is None:
-        raise Refused(400, f"entry {i + 1}: 'date' must be a date written YYYY-MM-DD (for example "
-                           f"2026-03-14), got {text!r}", value=str(text), **where)
-    start = _dt.date.fromisoformat(str(series.start))
-    end = _dt.date.fromisoformat(str(series.end))
-    if not start <= date <= end:
-        raise Refused(400, f"entry {i + 1}: tentative change date {date} is outside the series "
-                           f"({start} to {end})", value=str(text), **where)
-    out = {k: v for k, v in cp.items() if k != "date"}
-    out["day"] = float((date - start).days)
-    return out
-
-
-# --------------------------------------------------------------------------
-# Reading a run
-
+    """The engine's options from the spec (public option names, coerced and checked by the option table)."""
+    try:
+        return engine_options(spec, series)
+    except InputError as exc:
+        raise Refused.from_input_error(exc, source="spec") from None
 
 def _run_view(runs, rec):
     """What ``GET /runs/<id>`` answers for a run record."""

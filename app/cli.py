@@ -1,24 +1,15 @@
 """The ``bendline`` command line.
 
 ``bendline fit FILE ...`` runs the engine headless and writes the JSON result.
-Exit status: 0 when the fit converged; 3 when it finished unconverged (the
-result is still written, with ``diagnostics.converged = false``); 2 for bad
-input (a one-paragraph message on stderr naming file, row, column, value and
-what was expected); 1 for anything else (a message, never a traceback);
-130 when interrupted.
+Exit statuses: :mod:`app.commands.common`.
 """
 
 from __future__ import annotations
 
 import argparse
-import json
-import os
 import sys
 
-EXIT_OK = 0
-EXIT_ERROR = 1
-EXIT_INPUT = 2
-EXIT_UNCONVERGED = 3  # finished, but not reportable (unconverged, or a warning invalidates the numbers)
+from .commands.common import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json  # noqa: F401
 
 
 class _Parser(argparse.ArgumentParser):
@@ -57,18 +48,6 @@ def main(argv=None):
             "please report it with the command you ran\n"
         )
         return EXIT_ERROR
-
-
-def emit_json(obj, path):
-    """Write ``obj`` as JSON to ``path``, or to stdout when path is None or '-'."""
-    text = json.dumps(obj, indent=1, allow_nan=False)
-    if path in (None, "-"):
-        sys.stdout.write(text + "\n")
-    else:
-        tmp = f"{path}.tmp"
-        with open(tmp, "w", encoding="utf-8") as fh:
-            fh.write(text + "\n")
-        os.replace(tmp, path)
 
 
 if __name__ == "__main__":  # pragma: no cover

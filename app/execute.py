@@ -79,7 +79,7 @@ def execute_run(store_location, run_id, *, store=None):
         series = Series.from_dict(store.get_series(run_id))
         result, final = fit_result(
             series, rec["options"], sink=StoreSink(store, run_id),
-            on_snapshot=on_snapshot, should_stop=should_stop,
+            on_snapshot=on_snapshot, should_stop=should_stop, given=rec.get("spec"),
         )
         if final is not None:
             store.put_snapshot(run_id, final)

@@ -70,8 +70,11 @@ class RunService:
         self.max_in_flight = max_in_flight
 
     # -- creating
-    def submit(self, series, options, *, owner="local", kind="fit", parent=None):
+    def submit(self, series, options, *, owner="local", kind="fit", parent=None, spec=None):
         """Validate, store and queue a run; returns its record.
+
+        ``options`` are the engine's (:func:`inference.options.engine_options`);
+        ``spec`` the public options as given, kept for the result's ``spec``.
 
         Raises
         ------
@@ -96,6 +99,7 @@ class RunService:
             "interval_days": series.interval_days,
             "segments": int(options.get("segments", 3)),
             "options": dict(options),
+            "spec": dict(spec) if spec is not None else None,
             "seed": int(options.get("seed", 1)),
             "status": "queued",
             "reason": None,

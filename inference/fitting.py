@@ -18,7 +18,7 @@ from .spec import spec_from_options
 
 
 def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None, segment_support=None,
-               change_probability=None):
+               change_probability=None, given=None):
     """Fit ``series`` with the flat ``options`` and return the JSON result.
 
     Parameters
@@ -35,6 +35,10 @@ def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None
         A segment-count comparison to include.
     change_probability : dict, optional
         Its change probability averaged over K (:func:`inference.compare.change_probability`).
+    given : dict, optional
+        The options as the analyst gave them (public names,
+        :mod:`inference.options`): the result's ``spec``; ``options`` when
+        not given.
 
     Returns
     -------
@@ -53,7 +57,8 @@ def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None
         return None, final
     rng = np.random.default_rng(np.random.SeedSequence(settings.seed).spawn(4)[3])
     result = build_result(
-        model, settings, final, positions, rng, options=options, segment_support=segment_support,
+        model, settings, final, positions, rng, options=given if given is not None else options,
+        segment_support=segment_support,
         change_probability=change_probability,
     )
     # one verdict: the run's status and the final snapshot follow the result's

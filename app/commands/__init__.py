@@ -5,9 +5,10 @@ from __future__ import annotations
 
 def register_all(sub):
     """Add every subcommand to an argparse subparsers object."""
-    from . import batch, fit, report, serve, users, worker
+    from . import batch, fit, options_cmd, report, serve, users, worker
 
     fit.register(sub)
+    options_cmd.register(sub)
     batch.register(sub)
     report.register(sub)
     serve.register(sub)

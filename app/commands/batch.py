@@ -27,8 +27,8 @@ import unicodedata
 from inference.errors import InputError
 from inference.wording import verdict_of
 
-from ..cli import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json
-from .options import add_input_arguments, add_model_arguments, options_from_args
+from .common import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json
+from .options import add_input_arguments, add_model_arguments, check_args, options_from_args
 
 #: Columns of summary.csv, in order.
 SUMMARY_COLUMNS = (
@@ -98,7 +98,7 @@ def run_batch(args):
         sys.stderr.write(f"bendline batch: --workers must be at least 1, got {args.workers}\n")
         return EXIT_INPUT
     try:
-        check_options(args)
+        given = check_options(args)
         order, regions, outcomes = read_regions(args)
     except InputError as exc:
         sys.stderr.write(f"bendline batch: {exc}\n")
@@ -122,9 +122,9 @@ def run_batch(args):
         if isinstance(service, str):
             sys.stderr.write(f"bendline batch: {service}\n")
             return EXIT_ERROR
-        fits = fit_on_team(jobs, service)
+        fits = fit_on_team(jobs, service, given=given)
     else:
-        fits = fit_locally(jobs, args.workers)
+        fits = fit_locally(jobs, args.workers, given)
     progress = RegionProgress(len(order), quiet=args.quiet)
     progress.update(len(outcomes))
 
@@ -155,11 +155,16 @@ def run_batch(args):
 
 
 def check_options(args):
-    """Refuse bad model flags once, before any region is read (InputError)."""
+    """Refuse bad model flags once, before any region is read (InputError); returns the options given."""
+    from inference.options import engine_options
+    from inference.series import Series
     from inference.spec import spec_from_options
 
-    probe = argparse.Namespace(**{**vars(args), "change_date": []})
-    spec_from_options(options_from_args(probe, None))
+    given = check_args(args)
+    public = {k: v for k, v in given.items() if k != "change_date"}
+    probe = Series.from_counts("2026-01-05", [1.0] * 400)  # any series: the change dates are checked per region
+    spec_from_options(engine_options(public, probe))
+    return given
 
 
 def read_regions(args):
@@ -214,7 +219,7 @@ def failed(message):
     return {"status": "failed", "result": None, "message": message}
 
 
-def fit_region(series_dict, options):
+def fit_region(series_dict, options, given=None):
     """Fit one region in a worker process; returns its outcome (never raises).
 
     Parameters
@@ -223,6 +228,8 @@ def fit_region(series_dict, options):
         ``Series.to_dict()`` of the region.
     options : dict
         The engine's options.
+    given : dict, optional
+        The options as given on the command line (the result's ``spec``).
 
     Returns
     -------
@@ -233,7 +240,7 @@ def fit_region(series_dict, options):
     from inference.series import Series
 
     try:
-        result, final = fit_result(Series.from_dict(series_dict), options)
+        result, final = fit_result(Series.from_dict(series_dict), options, given=given)
     except InputError as exc:
         return failed(str(exc))
     except MemoryError:
@@ -246,7 +253,7 @@ def fit_region(series_dict, options):
     return {"status": status, "result": result, "message": None}
 
 
-def fit_locally(jobs, workers=None):
+def fit_locally(jobs, workers=None, given=None):
     """Fit the regions in parallel worker processes; yields (region, outcome) as each finishes."""
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
@@ -257,7 +264,7 @@ def fit_locally(jobs, workers=None):
     n = min(len(jobs), workers or os.cpu_count() or 1)
     pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"))
     try:
-        futures = {pool.submit(fit_region, series.to_dict(), options): region
+        futures = {pool.submit(fit_region, series.to_dict(), options, given): region
                    for region, (series, options) in jobs.items()}
         for fut in as_completed(futures):
             try:
@@ -297,7 +304,7 @@ def team_service(url):
 
 
 def fit_on_team(jobs, service, *, poll_seconds=TEAM_POLL_SECONDS, sleep=time.sleep,
-                clock=time.monotonic, log=sys.stderr):
+                clock=time.monotonic, log=sys.stderr, given=None):
     """Create one run per region on the team's workers and yield (region, outcome) as each finishes.
 
     Raises
@@ -318,7 +325,7 @@ def fit_on_team(jobs, service, *, poll_seconds=TEAM_POLL_SECONDS, sleep=time.sle
     try:
         for region, (series, options) in jobs.items():
             try:
-                pending[region] = service.submit(series, options, owner=owner)["id"]
+                pending[region] = service.submit(series, options, owner=owner, spec=given)["id"]
             except InputError as exc:
                 yield region, failed(str(exc))
             except QueueUnavailable:

@@ -7,8 +7,8 @@ import time
 
 from inference.errors import InputError
 
-from ..cli import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json
-from .options import add_input_arguments, add_model_arguments, options_from_args
+from .common import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json
+from .options import add_input_arguments, add_model_arguments, check_args, options_from_args
 
 
 def register(sub):
@@ -83,6 +83,7 @@ def run_fit(args):
             region=args.region,
             interval=args.interval,
         )
+        given = check_args(args)
         options = options_from_args(args, series)
         support = averaged = None
         if args.compare_segments:
@@ -93,7 +94,7 @@ def run_fit(args):
         progress = None if args.quiet else ProgressLine()
         # nobody watches the panels of a headless fit: snapshots carry counters only
         result, final = fit_result(series, dict(options, snapshot_summaries=False), on_snapshot=progress,
-                                   segment_support=support, change_probability=averaged)
+                                   segment_support=support, change_probability=averaged, given=given)
         result["spec"].pop("snapshot_summaries", None)
     except InputError as exc:
         sys.stderr.write(f"bendline fit: {exc}\n")

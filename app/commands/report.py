@@ -13,7 +13,7 @@ import json
 import os
 import sys
 
-from ..cli import EXIT_ERROR, EXIT_INPUT, EXIT_OK
+from .common import EXIT_ERROR, EXIT_INPUT, EXIT_OK
 
 PROG = "bendline report"
 

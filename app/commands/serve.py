@@ -5,7 +5,7 @@ from __future__ import annotations
 import os
 import sys
 
-from ..cli import EXIT_ERROR, EXIT_INPUT
+from .common import EXIT_ERROR, EXIT_INPUT
 
 DEFAULT_SAMPLE = "daily_admissions.csv"
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 import getpass
 import sys
 
-from ..cli import EXIT_ERROR, EXIT_INPUT, EXIT_OK
+from .common import EXIT_ERROR, EXIT_INPUT, EXIT_OK
 
 
 def register(sub):

@@ -6,7 +6,7 @@ import os
 import socket
 import sys
 
-from ..cli import EXIT_ERROR
+from .common import EXIT_ERROR
 
 
 def register(sub):

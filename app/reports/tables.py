@@ -23,6 +23,7 @@ import csv
 import io
 import math
 
+from .. import wording
 from .content import reportable
 
 #: The tables :func:`csv_tables` returns, in order.
@@ -64,11 +65,6 @@ def _num(v):
     return int(v) if isinstance(v, int) else f
 
 
-def _pct(r):
-    r = _num(r)
-    return None if r is None else 100.0 * math.expm1(r)
-
-
 def _q(summary, key):
     return _num((summary or {}).get(key))
 
@@ -89,10 +85,11 @@ def _write(header, rows, text_columns):
 
 def segments_table(result):
     """(header, rows) of the segments table."""
-    header = ["series", "status", "segment", "start_date", "end_date", "start_day", "end_day",
+    header = ["series", "status", "segment", "start_date", "end_date", "start_day", "end_day", "direction",
               "growth_rate_per_day_median", "growth_rate_per_day_q05", "growth_rate_per_day_q95",
               "growth_rate_per_day_mean",
               "growth_pct_per_day_median", "growth_pct_per_day_q05", "growth_pct_per_day_q95",
+              "growth_pct_per_week_median", "growth_pct_per_week_q05", "growth_pct_per_week_q95",
               "doubling_time_days_median", "doubling_time_days_q05", "doubling_time_days_q95",
               "halving_time_days_median", "halving_time_days_q05", "halving_time_days_q95",
               "prob_growing", "reproduction_number_median", "reproduction_number_q05",
@@ -102,10 +99,12 @@ def segments_table(result):
     for s in result.get("segments") or []:
         g, d, h = s.get("growth_rate_per_day") or {}, s.get("doubling_time_days"), s.get("halving_time_days")
         rn = s.get("reproduction_number")
+        day, week = wording.growth_block(s, "day"), wording.growth_block(s, "week")
         rows.append([name, status, _num(s.get("index")), s.get("start_date"), s.get("end_date"),
-                     _num(s.get("start_day")), _num(s.get("end_day")),
+                     _num(s.get("start_day")), _num(s.get("end_day")), wording.direction_of(s),
                      _q(g, "median"), _q(g, "q05"), _q(g, "q95"), _q(g, "mean"),
-                     _pct(g.get("median")), _pct(g.get("q05")), _pct(g.get("q95")),
+                     _q(day, "median"), _q(day, "q05"), _q(day, "q95"),
+                     _q(week, "median"), _q(week, "q05"), _q(week, "q95"),
                      _q(d, "median"), _q(d, "q05"), _q(d, "q95"), _q(h, "median"), _q(h, "q05"), _q(h, "q95"),
                      _num(s.get("prob_growing")), _q(rn, "median"), _q(rn, "q05"), _q(rn, "q95"),
                      _q(rn, "prob_above_1")])

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import sys
 
-from ..cli import EXIT_ERROR, EXIT_INPUT
+from ..commands.common import EXIT_ERROR, EXIT_INPUT
 
 
 def run_team_server(args):

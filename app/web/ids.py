@@ -24,7 +24,6 @@ ADD_CHANGE = "add-change-date"
 CHANGE_LIST = "change-date-list"
 CHANGE_SPREAD = "change-spread"  # pattern-matching: {"type": CHANGE_SPREAD, "index": i}
 CHANGE_REMOVE = "change-remove"  # pattern-matching
-SEGMENTS = "segments"
 SEGMENTS_NOTE = "segments-note"
 COMPARE = "compare-segments"  # "How many segments?"
 COMPARE_ID = "compare-id"
@@ -34,21 +33,11 @@ COMPARE_FIG = "compare-chart"
 COMPARE_STRIP = "compare-strip"  # {edges_day, probability, weights, series_hash}: P(change) averaged over K
 ADOPT = "adopt-segments"
 
-# model and priors
-FAMILY = "family"
-WEEKDAY = "weekday"
-JUMPS = "jumps"
-GROWTH_PRIOR = "growth-prior"
-GROWTH_PRIOR_NOTE = "growth-prior-note"
-MIN_SEGMENT = "min-segment"
-DROP_LAST = "drop-last"
-GI_MEAN = "gi-mean"
-GI_SD = "gi-sd"
-HORIZON = "horizon"
-CHAINS = "chains"
-DRAWS = "draws"
-SEED = "seed"
-THIN = "thin"
+# model and priors: one control per option of inference.options, its id the
+# option's name with dashes (app.web.controls.control_id)
+SEGMENTS = "segments"
+STALE_NOTE = "stale-note"
+ADVANCED = "advanced-sampler"  # the fold holding the sampler's settings  # "the controls changed since the fit shown"
 
 # running
 FIT = "fit-button"

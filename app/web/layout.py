@@ -7,6 +7,7 @@ from dash import dash_table, dcc, html
 from inference.result import CAUTIONS
 
 from . import ids
+from .controls import controls
 from .downloads import EXPORT_HINT, EXPORT_IDS, EXPORT_ROW, EXPORTS
 from .figures import empty_figure
 
@@ -65,8 +66,11 @@ def changepoint_section():
                "standard deviation in days.", className="help"),
         html.Button("Add change date", id=ids.ADD_CHANGE, className="btn"),
         html.Div(id=ids.CHANGE_LIST, className="change-list"),
-        _field("Segments", _number(ids.SEGMENTS, 3, min_=1, max_=12, step=1),
-               hint="", id_=ids.SEGMENTS_NOTE),
+        html.Div(className="field", children=[
+            html.Label("Segments", htmlFor=ids.SEGMENTS, className="field-label"),
+            _number(ids.SEGMENTS, 3, min_=1, max_=12, step=1),
+            html.Div("", className="field-hint", id=ids.SEGMENTS_NOTE),
+        ]),
         html.Div(className="compare", children=[
             html.Button("How many segments?", id=ids.COMPARE, className="btn", n_clicks=0,
                         title="Fit 1 to 6 segments and compare them by PSIS-LOO"),
@@ -84,31 +88,16 @@ def changepoint_section():
 def model_section():
     return html.Details(open=True, className="section", children=[
         html.Summary("3. Model and priors"),
-        _field("Observation model", dcc.RadioItems(
-            id=ids.FAMILY, value="negbin", className="radio",
-            options=[{"label": " Negative binomial (overdispersed counts)", "value": "negbin"},
-                     {"label": " Poisson", "value": "poisson"}])),
-        dcc.Checklist(id=ids.WEEKDAY, value=["on"], className="check",
-                      options=[{"label": " Day-of-week reporting effect (daily series)", "value": "on"}]),
-        dcc.Checklist(id=ids.JUMPS, value=[], className="check",
-                      options=[{"label": " Allow a jump in level at each change date", "value": "on"}]),
-        _field("Growth rates rarely exceed (% per day)", _number(ids.GROWTH_PRIOR, None, min_=0.5, max_=2000, step=0.5),
-               hint="blank: 20, wider for a series that rises or falls faster", id_=ids.GROWTH_PRIOR_NOTE),
-        _field("Minimum segment length (days)", _number(ids.MIN_SEGMENT, None, min_=2, max_=3650, step=1),
-               hint="blank: 14 days for daily series, 28 for weekly, shorter for a short series"),
-        _field("Leave out the last values as incomplete (intervals)", _number(ids.DROP_LAST, 0, min_=0, max_=60, step=1)),
-        html.Div(className="pair", children=[
-            _field("Generation interval mean (days)", _number(ids.GI_MEAN, None, min_=0.1, max_=60, step=0.1)),
-            _field("sd (days)", _number(ids.GI_SD, None, min_=0, max_=60, step=0.1)),
-        ]),
+        *controls("model", exclude=("segments",)),
+        html.H4("Projection and reproduction numbers", className="subhead"),
+        *controls("projection"),
         html.Div("Reproduction numbers need a generation interval; they depend on the interval assumed.",
                  className="field-hint"),
-        _field("Projection horizon (intervals)", _number(ids.HORIZON, 14, min_=0, max_=120, step=1)),
-        html.Div(className="pair", children=[
-            _field("Chains", _number(ids.CHAINS, 8, min_=2, max_=64, step=1, width="4.5em")),
-            _field("Draws per chain (at least)", _number(ids.DRAWS, 250, min_=50, max_=100000, step=50)),
-            _field("Seed", _number(ids.SEED, 1, min_=0, step=1, width="5em")),
-            _field("Keep every k-th draw", _number(ids.THIN, 1, min_=1, max_=10000, step=1, width="5em")),
+        html.Details(id=ids.ADVANCED, className="advanced", children=[
+            html.Summary("Advanced: sampler settings"),
+            html.P("The sampler runs until its chains agree: R-hat (how far the chains disagree; 1 is perfect) "
+                   "below 1.01 and at least 400 effective draws (ESS) for every quantity.", className="field-hint"),
+            *controls("sampler"),
         ]),
     ])
 

@@ -137,16 +137,17 @@ def test_multipart_post_gives_the_same_result_as_bendline_fit(make_app, tmp_path
 
 def test_multipart_region_in_the_spec_and_a_change_date(make_app):
     client = make_app()
-    spec = dict(FAST, region="orlund", changepoint_priors=[{"date": "2026-05-01", "spread_days": 7}])
+    spec = dict(FAST, region="orlund", change_date=["2026-05-01:7"])
     with open(LONG, "rb") as fh:
         r = client.post("/api/v1/runs", data={"file": (fh, "regions_long.csv"), "spec": json.dumps(spec)},
                         content_type="multipart/form-data")
     assert r.status_code == 201, r.get_json()
     result = client.get(r.get_json()["url"]).get_json()["result"]
     assert result["series"]["name"] == "Orlund"
-    # the loader's key is not a model option; the date became days from the series start
+    # the loader's key is not a model option; the spec is kept as given, the date became days inside
     assert "region" not in result["spec"]
-    assert result["spec"]["changepoint_priors"] == [{"day": 60.0, "spread_days": 7}]
+    assert result["spec"]["change_date"] == ["2026-05-01:7"]
+    assert result["spec_resolved"]["changepoint_priors"] == [{"day": 60.0, "spread_days": 7.0}]
     assert result["series"]["start"] == "2026-03-02"
 
 
@@ -278,11 +279,10 @@ def test_loader_keys_given_twice_and_bad_change_dates_are_refused(make_app):
     assert _assert_clean_error(twice, 400)["column"] == "region"
     no_region = _post_json(client, text, FAST)
     assert "regions" in _assert_clean_error(no_region, 400)["message"]
-    outside = _post_json(client, text, dict(FAST, changepoint_priors=[{"date": "2030-01-01"}]), region="Orlund")
+    outside = _post_json(client, text, dict(FAST, change_date=[{"date": "2030-01-01"}]), region="Orlund")
     error = _assert_clean_error(outside, 400)
-    assert error["column"] == "changepoint_priors" and "outside the series" in error["message"]
-    badly_written = _post_json(client, text, dict(FAST, changepoint_priors=[{"date": "01/05/2026"}]),
-                               region="Orlund")
+    assert error["column"] == "change_date" and "outside the series" in error["message"]
+    badly_written = _post_json(client, text, dict(FAST, change_date=["01/05/2026"]), region="Orlund")
     assert "YYYY-MM-DD" in _assert_clean_error(badly_written, 400)["message"]
     assert client.services.runs.list() == []
 

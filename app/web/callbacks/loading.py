@@ -10,42 +10,23 @@ from dash import Input, Output, State, ctx, html, no_update
 from inference.errors import InputError
 from inference.reader import list_regions, read_series
 
+from inference.options import public_options
+
 from .. import ids
 from ..context import decode_upload, get_series, put_series, services, store_guarded
+from ..controls import NAMES, control_id, controls_from_public
 
-# outputs of load(), in order
-CONTROL_IDS = (ids.FAMILY, ids.WEEKDAY, ids.JUMPS, ids.GROWTH_PRIOR, ids.MIN_SEGMENT, ids.DROP_LAST,
-               ids.GI_MEAN, ids.GI_SD, ids.HORIZON, ids.CHAINS, ids.DRAWS, ids.SEED, ids.SEGMENTS,
-               ids.THIN)
+# outputs of load(), in order: then one value per option control (app.web.controls.NAMES)
+CONTROL_IDS = tuple(control_id(name) for name in NAMES)
 
 
-def controls_from_options(options, interval_days):
+def controls_from_run(rec, series):
     """Control values (in CONTROL_IDS order) that reproduce a run's options."""
-    o = options
-    return [
-        o.get("family", "negbin"),
-        ["on"] if o.get("weekday", interval_days == 1) in (True, None) and interval_days == 1 else [],
-        ["on"] if o.get("jumps") else [],
-        o.get("growth_rate_prior_pct_per_day"),
-        o.get("min_segment_days"),
-        o.get("drop_last", 0),
-        o.get("gi_mean"),
-        o.get("gi_sd"),
-        o.get("horizon", 14),
-        o.get("chains", 8),
-        o.get("draws", 250),
-        o.get("seed", 1),
-        o.get("segments", 3),
-        o.get("thin", 1),
-    ]
-
-
-def defaults_for(series):
-    """Control values that depend on the interval, others left as they are."""
-    out = [no_update] * len(CONTROL_IDS)
-    out[CONTROL_IDS.index(ids.WEEKDAY)] = ["on"] if series.interval_days == 1 else []
-    out[CONTROL_IDS.index(ids.HORIZON)] = 14 if series.interval_days == 1 else 4
-    return out
+    public = rec.get("spec")
+    if not isinstance(public, dict):  # runs stored before the spec was kept
+        public = public_options(rec.get("options") or {}, series)
+    values = controls_from_public(public)
+    return [values[name] for name in NAMES]
 
 
 def _read(store, data, label, region=None):
@@ -101,8 +82,7 @@ def load(contents, sample, region, request, filename, series_key, current_run):
             key = put_series(store, series, label=rec.get("series_name", ""))
             options = rec["options"]
             cps = list(options.get("changepoint_priors") or [])
-            return [key, cps, run_id, [], None, hidden, "", no_update] + controls_from_options(
-                options, series.interval_days)
+            return [key, cps, run_id, [], None, hidden, "", no_update] + controls_from_run(rec, series)
         if trig == ids.UPLOAD:
             data = decode_upload(contents, svc.max_upload_bytes)
             label = os.path.basename(filename or "uploaded file")
@@ -130,7 +110,9 @@ def load(contents, sample, region, request, filename, series_key, current_run):
     key = put_series(store, series, raw_key=raw_key, regions=regions, region=region, label=series.name)
     options = [{"label": r, "value": r} for r in regions]
     style = {} if regions else hidden
-    return [key, [], None, options, region, style, "", ""] + defaults_for(series)
+    # the analyst's choices stay as they are on a new upload: defaults that depend
+    # on the series (weekday, horizon, minimum segment) are "automatic" choices
+    return [key, [], None, options, region, style, "", ""] + keep
 
 
 def describe(series_key):

@@ -4,57 +4,51 @@ from __future__ import annotations
 
 from dash import Input, Output, State, ctx, dcc, html, no_update
 
+import numpy as np
+
 from inference.errors import InputError
+from inference.options import BY_NAME as OPTION_BY_NAME
+from inference.options import engine_options, label_for
 
 from ...runs import QueueUnavailable
 from .. import ids
 from ..context import current_user, get_series, services, store_guarded
+from ..controls import NAMES, control_id, public_from_controls
 
-LABELS = {
-    "segments": "Segments", "family": "Observation model", "weekday": "Day-of-week effect",
-    "jumps": "Level jumps", "drop_last": "Leave out the last values",
-    "growth_rate_prior_pct_per_day": "Growth-rate prior", "min_segment_days": "Minimum segment length",
-    "gi_mean": "Generation interval mean", "gi_sd": "Generation interval sd", "horizon": "Projection horizon",
-    "chains": "Chains", "draws": "Draws per chain", "seed": "Seed", "changepoint_priors": "Change dates",
-    "thin": "Keep every k-th draw",
-}
+def options_from_controls(series, cps, values):
+    """(engine options, public options) the controls describe, validated by the option table.
 
-
-def options_from_controls(series, cps, segments, family, weekday, jumps, growth, min_seg, drop_last,
-                          gi_mean, gi_sd, horizon, chains, draws, seed, thin=1):
-    """The fit options the controls describe (validated later by the engine)."""
-    opts = {
-        "segments": len(cps) + 1 if cps else segments,
-        "family": family,
-        "weekday": bool(weekday) and series.interval_days == 1,
-        "jumps": bool(jumps),
-        "drop_last": drop_last or 0,
-        "horizon": horizon if horizon is not None else 14,
-        "chains": chains,
-        "draws": draws,
-        "seed": seed if seed is not None else 1,
-        "thin": thin if thin not in (None, "") else 1,
-    }
-    if min_seg not in (None, ""):
-        opts["min_segment_days"] = min_seg
-    if growth not in (None, ""):
-        opts["growth_rate_prior_pct_per_day"] = growth
-    if gi_mean not in (None, "") or gi_sd not in (None, ""):
-        opts["gi_mean"], opts["gi_sd"] = gi_mean, gi_sd
+    Parameters
+    ----------
+    series : Series
+    cps : list of {"day", "spread_days"}
+        The tentative change dates (day offsets from the series start).
+    values : dict
+        Control values by option name (:data:`app.web.controls.NAMES`).
+    """
+    public = public_from_controls(values)
     if cps:
-        opts["changepoint_priors"] = [{"day": c["day"], "spread_days": c["spread_days"]} for c in cps]
-    for key in ("segments", "chains", "draws"):
-        if opts[key] in (None, ""):
-            raise InputError("this value is empty; enter a number", column=key)
-    return opts
+        public["change_date"] = [f"{series.start + np.timedelta64(int(round(c['day'])), 'D')}:{c['spread_days']:g}"
+                                 for c in cps if isinstance(c, dict) and "day" in c]
+        public.pop("segments", None)  # the change dates set the segment count
+    for name in ("segments", "chains", "draws"):
+        if name not in public and not (name == "segments" and cps):
+            raise InputError("this value is empty; enter a number", column=name)
+    return engine_options(public, series), public
+
+
+def label_of(column):
+    """The control's label for an error about this option (its name when it has no control)."""
+    option = OPTION_BY_NAME.get(column)
+    return label_for(option) if option is not None else column
 
 
 def submit_from_controls(series_key, cps, controls, submit):
     """Validate the controls' options and submit them; returns (record, None) or (None, message).
 
-    ``controls`` are the option controls' values in the order of
-    :func:`options_from_controls` after ``cps``; ``submit(series, options,
-    owner)`` stores the run(s). Shared by Fit and "How many segments?".
+    ``controls`` are the option controls' values by option name;
+    ``submit(series, options, owner, public)`` stores the run(s). Shared by
+    Fit and "How many segments?".
     """
     svc = services()
     series, _ = get_series(svc.store, series_key)
@@ -62,10 +56,10 @@ def submit_from_controls(series_key, cps, controls, submit):
         return None, "Load a series first."
     user, _ = current_user()
     try:
-        opts = options_from_controls(series, cps, *controls)
-        return submit(series, opts, user), None
+        opts, public = options_from_controls(series, cps, controls)
+        return submit(series, opts, user, public), None
     except InputError as exc:
-        label = LABELS.get(exc.column, exc.column)
+        label = label_of(exc.column)
         return None, f"{label}: {exc.detail}" if label else str(exc)
     except QueueUnavailable as exc:
         return None, f"The fit queue is unavailable ({exc}); nothing was lost, try again shortly."
@@ -73,13 +67,19 @@ def submit_from_controls(series_key, cps, controls, submit):
         return None, str(exc)
 
 
-def fit(n_clicks, series_key, cps, *controls):
+def named(values):
+    """Control values by option name, from the callback's positional values (in :data:`NAMES` order)."""
+    return dict(zip(NAMES, values))
+
+
+def fit(n_clicks, series_key, cps, *values):
     """Submit a run; returns (url search, run id, error message)."""
     if not n_clicks:
         return no_update, no_update, no_update
     runs = services().runs
-    rec, message = submit_from_controls(series_key, cps or [], controls,
-                                        lambda series, opts, user: runs.submit(series, opts, owner=user))
+    rec, message = submit_from_controls(
+        series_key, cps if isinstance(cps, list) else [], named(values),
+        lambda series, opts, user, public: runs.submit(series, opts, owner=user, spec=public))
     if rec is None:
         return no_update, no_update, message
     return f"?run={rec['id']}", rec["id"], ""
@@ -132,14 +132,9 @@ def run_rows(_clicks, n_intervals, run_id, _poll_off=None):
 
 
 def control_states():
-    """The series, the change dates and the option controls, in the order of
-    :func:`fit` (and of :func:`submit_from_controls`'s ``controls``)."""
-    return [State(ids.SERIES_KEY, "data"), State(ids.CHANGEPOINTS, "data"), State(ids.SEGMENTS, "value"),
-            State(ids.FAMILY, "value"), State(ids.WEEKDAY, "value"), State(ids.JUMPS, "value"),
-            State(ids.GROWTH_PRIOR, "value"), State(ids.MIN_SEGMENT, "value"), State(ids.DROP_LAST, "value"),
-            State(ids.GI_MEAN, "value"), State(ids.GI_SD, "value"), State(ids.HORIZON, "value"),
-            State(ids.CHAINS, "value"), State(ids.DRAWS, "value"), State(ids.SEED, "value"),
-            State(ids.THIN, "value")]
+    """The series, the change dates and the option controls, in the order of :func:`fit`."""
+    return [State(ids.SERIES_KEY, "data"), State(ids.CHANGEPOINTS, "data"),
+            *[State(control_id(name), "value") for name in NAMES]]
 
 
 def register(app):

@@ -8,7 +8,7 @@ from ...runs import SegmentComparison
 from .. import figures as F
 from .. import ids
 from ..context import services, store_guarded
-from .running import control_states, submit_from_controls
+from .running import control_states, named, submit_from_controls
 
 HIDDEN, SHOWN = {"display": "none"}, {}
 
@@ -19,8 +19,9 @@ def start(n_clicks, series_key, _cps, *controls):
         return no_update, no_update, no_update
     comparison = SegmentComparison(services().runs)
     # tentative change dates fix K, so they are left out here
-    rec, message = submit_from_controls(series_key, [], controls,
-                                        lambda series, opts, user: comparison.start(series, opts, owner=user))
+    rec, message = submit_from_controls(series_key, [], named(controls),
+                                        lambda series, opts, user, public: comparison.start(series, opts,
+                                                                                            owner=user))
     if rec is None:
         return no_update, no_update, message
     n = len(rec["members"])

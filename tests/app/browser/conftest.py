@@ -127,6 +127,8 @@ def hold_fit_open(page):
     any machine of this kind, while a draw is still kept every few tenths of
     a second, so a stop leaves draws to show. The test stops the run itself.
     """
+    if not page.evaluate("document.querySelector('#advanced-sampler').open"):
+        page.click("#advanced-sampler > summary")  # the sampler's settings sit in a fold
     page.fill("#draws", "100000")
     page.press("#draws", "Enter")
     page.fill("#thin", "100")
