@@ -24,9 +24,9 @@ import re
 from flask import Blueprint, current_app, jsonify, request
 from werkzeug.exceptions import HTTPException
 
-from inference import reader
-from inference.errors import InputError
-from inference.options import check_public, engine_options
+from bendline.inference import reader
+from bendline.inference.errors import InputError
+from bendline.inference.options import check_public, engine_options
 
 from .runs import QueueUnavailable
 from .store import FINISHED, valid_run_id

@@ -12,6 +12,10 @@ import sys
 from .commands.common import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json  # noqa: F401
 
 
+#: Packages only team mode needs (the ``team`` extra).
+TEAM_MODULES = ("celery", "redis", "gunicorn", "kombu")
+
+
 class _Parser(argparse.ArgumentParser):
     """argparse that reports errors as one paragraph with exit status 2."""
 
@@ -41,6 +45,14 @@ def main(argv=None):
         sys.stderr.write("bendline: interrupted\n")
         return 130
     except BrokenPipeError:
+        return EXIT_ERROR
+    except ModuleNotFoundError as exc:
+        if (exc.name or "").split(".")[0] in TEAM_MODULES:
+            sys.stderr.write(f"bendline {args.command}: team mode needs its extra packages ({exc.name} is not "
+                             "installed): pip install 'bendline[team]'\n")
+            return EXIT_ERROR
+        sys.stderr.write(f"bendline {args.command}: a package Bendline needs is missing ({exc.name}); "
+                         "reinstall Bendline\n")
         return EXIT_ERROR
     except Exception as exc:  # a bug of ours: say so in one line, no traceback
         sys.stderr.write(

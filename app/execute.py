@@ -11,9 +11,9 @@ import socket
 import threading
 import time
 
-from inference.errors import InputError
-from inference.fitting import fit_result
-from inference.series import Series
+from bendline.inference.errors import InputError
+from bendline.inference.fitting import fit_result
+from bendline.inference.series import Series
 
 from .runs import now_iso
 from .store import FINISHED, StoreSink, open_store
@@ -121,9 +121,9 @@ def execute_run(store_location, run_id, *, store=None):
 
 def _loo(series, options, store, run_id, final):
     """PSIS-LOO of a member of a segment-count comparison, from its stored draws."""
-    from inference.compare import loo_summary
-    from inference.model import TrendModel
-    from inference.spec import spec_from_options
+    from bendline.inference.compare import loo_summary
+    from bendline.inference.model import TrendModel
+    from bendline.inference.spec import spec_from_options
 
     model = TrendModel(series, spec_from_options(options)[0])
     positions, _ = store.read_draws(run_id)

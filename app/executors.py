@@ -22,7 +22,7 @@ from .store import FINISHED
 
 def _warm():
     """Import the engine in a fresh worker so the first fit starts at once."""
-    import inference.fitting  # noqa: F401
+    import bendline.inference.fitting  # noqa: F401
 
     return True
 

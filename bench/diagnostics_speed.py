@@ -14,7 +14,7 @@ import time
 
 import numpy as np
 
-from inference import diagnostics as dg
+from bendline.inference import diagnostics as dg
 
 
 def ar1(rng, chains, draws, params, phi=0.9):

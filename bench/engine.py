@@ -47,8 +47,8 @@ from cases import HARD_CASES, reference_problem, ten_year_problem, write_regions
 
 
 def run_bendline(which, seed=11):
-    from inference.driver import run
-    from inference.spec import ModelSpec, RunSettings
+    from bendline.inference.driver import run
+    from bendline.inference.spec import ModelSpec, RunSettings
 
     series, K = reference_problem() if which == "reference" else ten_year_problem()
     spec = ModelSpec(segments=K, family="negbin", weekday=True)
@@ -75,11 +75,11 @@ def run_bendline(which, seed=11):
 
 def run_baseline(seed=12):
     """Random-walk Metropolis, 4 chains, pilot-tuned diagonal proposal."""
-    from inference import diagnostics
-    from inference.init import find_starts
-    from inference.model import TrendModel
-    from inference.spec import ModelSpec
-    from inference.summaries import reported_quantities
+    from bendline.inference import diagnostics
+    from bendline.inference.init import find_starts
+    from bendline.inference.model import TrendModel
+    from bendline.inference.spec import ModelSpec
+    from bendline.inference.summaries import reported_quantities
 
     series, K = reference_problem()
     model = TrendModel(series, ModelSpec(segments=K, family="negbin", weekday=True))
@@ -142,8 +142,8 @@ def run_baseline(seed=12):
 
 def run_throughput(seed=11):
     """Sampler throughput: 32 chains, 1000 draws each after warm-up, min-ESS per second of sampling."""
-    from inference.driver import run
-    from inference.spec import ModelSpec, RunSettings
+    from bendline.inference.driver import run
+    from bendline.inference.spec import ModelSpec, RunSettings
 
     series, K = reference_problem()
     spec = ModelSpec(segments=K, family="negbin", weekday=True)
@@ -162,7 +162,7 @@ def run_throughput(seed=11):
 
 def run_hard(name, seed=1):
     """One real hard case, as `bendline fit` runs it (default settings, the series' defaults)."""
-    from inference.fitting import fit_result
+    from bendline.inference.fitting import fit_result
 
     build, options = HARD_CASES[name]
     series = build()
@@ -189,7 +189,7 @@ def run_regions(workers=2):
         write_regions(path)
         out = os.path.join(tmp, "fits")
         t0 = time.perf_counter()
-        proc = subprocess.run([sys.executable, "-m", "app.cli", "batch", path, "--by", "region", "--out-dir", out,
+        proc = subprocess.run([sys.executable, "-m", "bendline.app.cli", "batch", path, "--by", "region", "--out-dir", out,
                                "--workers", str(workers), "--quiet"], cwd=ROOT, capture_output=True, text=True)
         seconds = time.perf_counter() - t0
         with open(os.path.join(out, "summary.csv"), encoding="utf-8-sig") as fh:

@@ -104,7 +104,7 @@ def main():
     ap.add_argument("--users", type=int, default=20)
     ap.add_argument("--seconds", type=float, default=120.0)
     args = ap.parse_args()
-    from app.team.users import UserStore
+    from bendline.app.team.users import UserStore
 
     tmp = tempfile.mkdtemp(prefix="bendline-load-")
     redis = RedisServer(os.path.join(tmp, "redis")).start()

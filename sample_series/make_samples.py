@@ -20,7 +20,7 @@ import numpy as np
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 
-from inference.simulate import simulate  # noqa: E402
+from bendline.inference.simulate import simulate  # noqa: E402
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 # Reports dip at the weekend and catch up on Tuesday (invented pattern).

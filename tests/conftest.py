@@ -3,14 +3,11 @@
 from __future__ import annotations
 
 import os
-import sys
 
 import numpy as np
 import pytest
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-if ROOT not in sys.path:
-    sys.path.insert(0, ROOT)
 
 SAMPLES = os.path.join(ROOT, "sample_series")
 
@@ -24,7 +21,7 @@ def rng():
 @pytest.fixture
 def small_series():
     """120 invented daily values, 3 segments, weekday effect, negative binomial."""
-    from inference.simulate import simulate
+    from bendline.inference.simulate import simulate
 
     series, truth = simulate(
         np.random.default_rng(5), "2026-02-02", 120, start_level=40.0,

@@ -24,8 +24,8 @@ import sys
 import time
 import unicodedata
 
-from inference.errors import InputError
-from inference.wording import verdict_of
+from bendline.inference.errors import InputError
+from bendline.inference.wording import verdict_of
 
 from .common import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json
 from .options import add_input_arguments, add_model_arguments, check_args, options_from_args
@@ -156,9 +156,9 @@ def run_batch(args):
 
 def check_options(args):
     """Refuse bad model flags once, before any region is read (InputError); returns the options given."""
-    from inference.options import engine_options
-    from inference.series import Series
-    from inference.spec import spec_from_options
+    from bendline.inference.options import engine_options
+    from bendline.inference.series import Series
+    from bendline.inference.spec import spec_from_options
 
     given = check_args(args)
     public = {k: v for k, v in given.items() if k != "change_date"}
@@ -183,7 +183,7 @@ def read_regions(args):
     InputError
         When the file, the region column or every region cannot be read.
     """
-    from inference.reader import list_regions, read_all_regions, read_series
+    from bendline.inference.reader import list_regions, read_all_regions, read_series
 
     kw = {"date_column": args.date_column, "count_column": args.count_column, "interval": args.interval}
     try:
@@ -236,8 +236,8 @@ def fit_region(series_dict, options, given=None):
     dict
         ``status``, ``result`` (the JSON result or None) and ``message``.
     """
-    from inference.fitting import fit_result
-    from inference.series import Series
+    from bendline.inference.fitting import fit_result
+    from bendline.inference.series import Series
 
     try:
         result, final = fit_result(Series.from_dict(series_dict), options, given=given)

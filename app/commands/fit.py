@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 import time
 
-from inference.errors import InputError
+from bendline.inference.errors import InputError
 
 from .common import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json
 from .options import add_input_arguments, add_model_arguments, check_args, options_from_args
@@ -72,8 +72,8 @@ class ProgressLine:
 
 
 def run_fit(args):
-    from inference.fitting import fit_result
-    from inference.reader import read_series
+    from bendline.inference.fitting import fit_result
+    from bendline.inference.reader import read_series
 
     try:
         series = read_series(
@@ -87,7 +87,7 @@ def run_fit(args):
         options = options_from_args(args, series)
         support = averaged = None
         if args.compare_segments:
-            from inference.compare import compare_segments
+            from bendline.inference.compare import compare_segments
 
             progress = None if args.quiet else sys.stderr
             support, averaged = compare_segments(series, options, log=progress)
@@ -122,7 +122,7 @@ def verdict_to_stderr(result, *, quiet=False, prog="bendline fit"):
     0 when the result is reportable; 3 when the fit finished but its numbers
     must not be reported (the reasons are printed even with ``--quiet``).
     """
-    from inference.wording import verdict_of
+    from bendline.inference.wording import verdict_of
 
     diag = result["diagnostics"]
     ok, reasons = verdict_of(diag)

@@ -8,7 +8,7 @@ same values with the same messages.
 
 from __future__ import annotations
 
-from inference.options import LOADER_OPTIONS, OPTIONS, check_public, engine_options
+from bendline.inference.options import LOADER_OPTIONS, OPTIONS, check_public, engine_options
 
 
 def _add(p, option):

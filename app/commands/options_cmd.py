@@ -15,7 +15,7 @@ def register(sub):
 
 
 def run_options(_args):
-    from inference.options import markdown_table
+    from bendline.inference.options import markdown_table
 
     sys.stdout.write(markdown_table() + "\n")
     return EXIT_OK

@@ -69,7 +69,7 @@ def _write_text(path, text):
 
 
 def run_report(args):
-    from inference.wording import verdict_of
+    from bendline.inference.wording import verdict_of
 
     from ..reports import TABLES, csv_tables, html_report, reportable
 

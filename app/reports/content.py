@@ -11,8 +11,8 @@ project.
 
 from __future__ import annotations
 
-from inference import SCHEMA_VERSION
-from inference.result import CAUTIONS
+from bendline.inference import SCHEMA_VERSION
+from bendline.inference.result import CAUTIONS
 
 from .. import wording
 
@@ -151,10 +151,10 @@ def assumptions_from_options(series, options):
     Built by the engine's own :func:`inference.result.assumptions` from the
     run's options, so they read exactly as the finished result's will.
     """
-    from inference.errors import InputError
-    from inference.model import TrendModel
-    from inference.result import assumptions
-    from inference.spec import spec_from_options
+    from bendline.inference.errors import InputError
+    from bendline.inference.model import TrendModel
+    from bendline.inference.result import assumptions
+    from bendline.inference.spec import spec_from_options
 
     try:
         model_spec, _ = spec_from_options(dict(options or {}))

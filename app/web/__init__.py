@@ -47,7 +47,7 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
         app) and the downloads (``/download/<run id>/...``) are added to the
         same Flask server.
     """
-    from inference.reader import read_series
+    from bendline.inference.reader import read_series
 
     from . import callbacks, layout
     from .brief import create_brief_app

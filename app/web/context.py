@@ -13,8 +13,8 @@ from dataclasses import dataclass, field
 
 from flask import current_app, g
 
-from inference.errors import InputError
-from inference.series import Series
+from bendline.inference.errors import InputError
+from bendline.inference.series import Series
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 SAMPLES_DIR = os.path.join(ROOT, "sample_series")

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 from dash import dcc, html
 
-from inference.options import OPTIONS, label_for
+from bendline.inference.options import OPTIONS, label_for
 
 #: The options with a control of their own, in the order callbacks list them.
 CONTROL_OPTIONS = tuple(o for o in OPTIONS if o.kind != "change_dates")

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dash import dash_table, dcc, html
 
-from inference.result import CAUTIONS
+from bendline.inference.result import CAUTIONS
 
 from . import ids
 from .controls import controls

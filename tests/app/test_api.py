@@ -9,15 +9,15 @@ import os
 import pytest
 from flask import g
 
-from app import cli
-from app.api import register_api
-from app.executors import InlineExecutor
-from app.runs import RunService
-from app.store import valid_run_id
-from app.store.disk import DiskRunStore
-from app.web import create_app
-from app.web.context import AppServices
-from inference import reader
+from bendline.app import cli
+from bendline.app.api import register_api
+from bendline.app.executors import InlineExecutor
+from bendline.app.runs import RunService
+from bendline.app.store import valid_run_id
+from bendline.app.store.disk import DiskRunStore
+from bendline.app.web import create_app
+from bendline.app.web.context import AppServices
+from bendline.inference import reader
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 SAMPLES = os.path.join(ROOT, "sample_series")

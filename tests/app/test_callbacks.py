@@ -10,23 +10,23 @@ from dash import Patch, no_update
 from dash._callback_context import context_value
 from dash._utils import AttributeDict
 
-from app.executors import InlineExecutor
-from app.runs import RunService
-from app.store.disk import DiskRunStore
-from app.web import create_app, ids
-from app.web.callbacks import changes, loading, panels, running
+from bendline.app.executors import InlineExecutor
+from bendline.app.runs import RunService
+from bendline.app.store.disk import DiskRunStore
+from bendline.app.web import create_app, ids
+from bendline.app.web.callbacks import changes, loading, panels, running
 
 ST, PO = panels.NAMES.index("state"), panels.NAMES.index("poll_off")
 
 
 def controls(**values):
     """The option controls' values in the callbacks' order, defaults for the rest."""
-    from app.web.controls import NAMES, controls_from_public
+    from bendline.app.web.controls import NAMES, controls_from_public
 
     base = controls_from_public({})
     base.update(values)
     return [base[name] for name in NAMES]
-from app.web.context import AppServices, get_series
+from bendline.app.web.context import AppServices, get_series
 
 from .figure_helpers import _load
 
@@ -289,7 +289,7 @@ def test_to_patch_sets_only_what_changed():
 
 @pytest.mark.slow
 def test_how_many_segments_compares_and_adopts(app):
-    from app.web.callbacks import segments
+    from bendline.app.web.callbacks import segments
 
     with app.server.test_request_context("/"):
         key = _load_sample(app)

@@ -10,12 +10,12 @@ import sys
 import numpy as np
 import pytest
 
-from app import cli, commands
-from app.commands import batch
-from app.executors import InlineExecutor
-from app.runs import RunService
-from app.store.disk import DiskRunStore
-from inference.simulate import simulate
+from bendline.app import cli, commands
+from bendline.app.commands import batch
+from bendline.app.executors import InlineExecutor
+from bendline.app.runs import RunService
+from bendline.app.store.disk import DiskRunStore
+from bendline.inference.simulate import simulate
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 LONG = os.path.join(ROOT, "sample_series", "regions_long.csv")
@@ -199,8 +199,8 @@ def test_without_the_team_extras_redis_mode_says_so_and_exits_1(tmp_path, capsys
                                           "redis://localhost:1/0", "--out-dir", str(tmp_path / "fits"),
                                           "--quiet"])
     # other subcommands may import the team modules while the parser is built; fail them only now
-    monkeypatch.setitem(sys.modules, "app.store.redis_store", None)
-    monkeypatch.setitem(sys.modules, "app.team.tasks", None)
+    monkeypatch.setitem(sys.modules, "bendline.app.store.redis_store", None)
+    monkeypatch.setitem(sys.modules, "bendline.app.team.tasks", None)
     code = args.handler(args)
     assert code == 1
     assert "team mode is not available" in capsys.readouterr().err

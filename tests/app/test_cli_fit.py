@@ -24,7 +24,7 @@ BAND_KEYS = {"dates", "trend_q05", "trend_q50", "trend_q95", "predictive_q05", "
 
 def bendline(*args, timeout=300):
     env = dict(os.environ, PYTHONPATH=ROOT)
-    return subprocess.run([sys.executable, "-m", "app.cli", *args], capture_output=True, text=True,
+    return subprocess.run([sys.executable, "-m", "bendline.app.cli", *args], capture_output=True, text=True,
                           timeout=timeout, env=env, cwd=ROOT)
 
 

@@ -8,9 +8,9 @@ import sys
 import pytest
 import redis
 
-from app import cli
-from app.commands import users as users_command
-from app.team.users import UserStore
+from bendline.app import cli
+from bendline.app.commands import users as users_command
+from bendline.app.team.users import UserStore
 
 from .redis_server import free_port
 
@@ -118,3 +118,20 @@ def test_missing_redis_option_is_an_input_error(capsys, monkeypatch):
     with pytest.raises(SystemExit) as info:
         cli.main(["users", "list"])
     assert info.value.code == 2 and "--redis" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("argv", [["users", "list", "--redis", "redis://127.0.0.1:1/0"],
+                                  ["serve", "--team", "--redis", "redis://127.0.0.1:1/0"],
+                                  ["worker", "--redis", "redis://127.0.0.1:1/0"]])
+def test_team_mode_without_its_extra_says_how_to_install_it(monkeypatch, capsys, argv):
+    from bendline.app import cli
+
+    for name in list(sys.modules):
+        if name.split(".")[0] in ("celery", "redis", "kombu") or name.startswith(("bendline.app.team",
+                                                                                  "bendline.app.store.redis")):
+            monkeypatch.delitem(sys.modules, name)
+    for name in ("celery", "redis", "kombu"):
+        monkeypatch.setitem(sys.modules, name, None)  # as if not installed
+    assert cli.main(argv) == 1
+    err = capsys.readouterr().err
+    assert "team mode needs" in err and "pip install 'bendline[team]'" in err and "Traceback" not in err

@@ -11,16 +11,16 @@ import pytest
 from dash._callback_context import context_value
 from dash._utils import AttributeDict
 
-from app.executors import InlineExecutor
-from app.reports import TABLES
-from app.runs import RunService
-from app.store.disk import DiskRunStore
-from app.web import brief, create_app
-from app.web.callbacks import exports
-from app.web.context import AppServices
-from app.web.downloads import EXPORTS, export_links, file_name, safe_name
-from inference.reader import read_series
-from inference.result import CAUTIONS
+from bendline.app.executors import InlineExecutor
+from bendline.app.reports import TABLES
+from bendline.app.runs import RunService
+from bendline.app.store.disk import DiskRunStore
+from bendline.app.web import brief, create_app
+from bendline.app.web.callbacks import exports
+from bendline.app.web.context import AppServices
+from bendline.app.web.downloads import EXPORTS, export_links, file_name, safe_name
+from bendline.inference.reader import read_series
+from bendline.inference.result import CAUTIONS
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 SAMPLE = os.path.join(ROOT, "sample_series", "daily_admissions.csv")
@@ -121,7 +121,7 @@ def test_brief_content_of_a_finished_run_is_the_result(site):
     assert out[(brief.POLL, "disabled")] is True
     assert "data through 4 Oct 2026" in out[(brief.TITLE, "children")]
     text = str(out[(brief.HEADLINE, "children")])
-    from app import wording
+    from bendline.app import wording
 
     for _label, value, _detail in wording.headline_stats(result):
         assert value.split(" per ")[0] in text
@@ -136,7 +136,7 @@ def test_brief_content_of_a_finished_run_is_the_result(site):
 
 
 def test_brief_content_while_sampling_is_provisional():
-    from inference.series import Series
+    from bendline.inference.series import Series
 
     snap = json.load(open(os.path.join(DATA, "snapshot_04_sampling.json")))
     series = Series.from_dict(json.load(open(os.path.join(DATA, "series.json"))))

@@ -13,8 +13,8 @@ import json
 import plotly.graph_objects as go
 import pytest
 
-from app.web import figures as F
-from app.web import theme
+from bendline.app.web import figures as F
+from bendline.app.web import theme
 
 from .figure_helpers import (
     ALL_SNAPSHOTS,

@@ -14,8 +14,8 @@ import re
 
 import pytest
 
-from app.web import figures as F
-from app.web import theme
+from bendline.app.web import figures as F
+from bendline.app.web import theme
 
 from .figure_helpers import (
     TENTATIVE,

@@ -12,13 +12,13 @@ import os
 
 import pytest
 
-from app.cli import build_parser
-from app.commands.options import options_from_args
-from app.reports import csv_tables
-from app.web.callbacks.running import options_from_controls
-from app.web.controls import controls_from_public
-from inference.options import OPTIONS, engine_options
-from inference.reader import read_series
+from bendline.app.cli import build_parser
+from bendline.app.commands.options import options_from_args
+from bendline.app.reports import csv_tables
+from bendline.app.web.callbacks.running import options_from_controls
+from bendline.app.web.controls import controls_from_public
+from bendline.inference.options import OPTIONS, engine_options
+from bendline.inference.reader import read_series
 
 SAMPLES = os.path.join(os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))),
                        "sample_series")
@@ -76,8 +76,8 @@ def test_the_command_line_the_api_and_the_dashboard_give_the_same_options(daily,
 
 
 def test_every_option_has_a_flag_an_api_key_and_a_control():
-    from app.web.controls import NAMES, control_id
-    from app.web.layout import page
+    from bendline.app.web.controls import NAMES, control_id
+    from bendline.app.web.layout import page
 
     parser_help = build_parser().parse_args(["fit", "x.csv"])
     layout = str(page([]))
@@ -95,7 +95,7 @@ def test_weekly_horizon_is_in_weeks_everywhere():
 
 
 def test_strings_are_coerced_only_when_unambiguous(daily):
-    from inference.errors import InputError
+    from bendline.inference.errors import InputError
 
     assert engine_options({"segments": "3", "max_seconds": "60", "growth_prior_pct": "20",
                            "completeness": "0.5,0.8"}, daily)["completeness"] == [0.5, 0.8]
@@ -109,10 +109,10 @@ def test_strings_are_coerced_only_when_unambiguous(daily):
 
 
 def test_every_view_says_the_direction_the_json_says(tmp_path):
-    from app import wording
-    from app.web import figures as F
-    from app.reports.content import result_view
-    from inference.fitting import fit_result
+    from bendline.app import wording
+    from bendline.app.web import figures as F
+    from bendline.app.reports.content import result_view
+    from bendline.inference.fitting import fit_result
 
     for name, k in (("daily_admissions.csv", 3), ("weekly_cases.csv", 3)):
         series = read_series(os.path.join(SAMPLES, name))

@@ -14,10 +14,10 @@ from html.parser import HTMLParser
 
 import pytest
 
-from app import wording
-from app.commands import report
-from app.reports import NOT_CONVERGED_BOX, TABLES, csv_tables, html_report, neutralise
-from inference.result import CAUTIONS
+from bendline.app import wording
+from bendline.app.commands import report
+from bendline.app.reports import NOT_CONVERGED_BOX, TABLES, csv_tables, html_report, neutralise
+from bendline.inference.result import CAUTIONS
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 SAMPLE = os.path.join(ROOT, "sample_series", "daily_admissions.csv")
@@ -29,8 +29,8 @@ FETCHING = {"src", "href", "srcset", "poster", "data", "action", "formaction", "
 
 @pytest.fixture(scope="module")
 def result():
-    from inference.fitting import fit_result
-    from inference.reader import read_series
+    from bendline.inference.fitting import fit_result
+    from bendline.inference.reader import read_series
 
     res, _ = fit_result(read_series(SAMPLE), {"segments": 2, "chains": 4, "draws": 100, "seed": 3})
     return res

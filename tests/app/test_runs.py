@@ -6,11 +6,11 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from app.executors import InlineExecutor
-from app.runs import RunService
-from app.store.disk import DiskRunStore
-from inference.errors import InputError
-from inference.simulate import simulate
+from bendline.app.executors import InlineExecutor
+from bendline.app.runs import RunService
+from bendline.app.store.disk import DiskRunStore
+from bendline.inference.errors import InputError
+from bendline.inference.simulate import simulate
 
 
 @pytest.fixture
@@ -74,7 +74,7 @@ def test_a_stop_request_during_sampling_keeps_the_draws(tmp_path, series):
         return calls["n"] > 40 or real(run_id)
 
     store.stop_requested = stop_after_a_while
-    import app.execute as ex
+    import bendline.app.execute as ex
 
     old = ex.STOP_POLL
     ex.STOP_POLL = 0.0
@@ -124,7 +124,7 @@ def test_version_mismatch_is_reported_not_hung(tmp_path, series):
     store = DiskRunStore(str(tmp_path))
     rec = RunService(store, type("H", (), {"submit": lambda self, r: None})()).submit(series, FAST)
     store.update_run(rec["id"], code_version="0.0.0-other")
-    from app.execute import execute_run
+    from bendline.app.execute import execute_run
 
     assert execute_run(store.location, rec["id"], store=store) == "failed"
     assert "version" in store.get_run(rec["id"])["reason"]
@@ -156,7 +156,7 @@ def test_runs_past_the_per_user_limit_wait_and_start_when_room_frees(tmp_path, s
 
 
 def test_a_segment_comparison_fits_each_count_and_recommends_one(tmp_path, series):
-    from app.runs import SegmentComparison
+    from bendline.app.runs import SegmentComparison
 
     store = DiskRunStore(str(tmp_path))
     svc = RunService(store, InlineExecutor(store))

@@ -14,9 +14,9 @@ import numpy as np
 import pytest
 import redis
 
-from app.store import StoreSink, open_store, valid_run_id
-from app.store.disk import DiskRunStore
-from app.store.redis_store import RedisRunStore, StoreUnavailable, redacted_url
+from bendline.app.store import StoreSink, open_store, valid_run_id
+from bendline.app.store.disk import DiskRunStore
+from bendline.app.store.redis_store import RedisRunStore, StoreUnavailable, redacted_url
 
 from .redis_server import RedisServer, find_binary, free_port
 

@@ -7,8 +7,8 @@ import hashlib
 import pytest
 import redis
 
-from app.store.redis_store import StoreUnavailable
-from app.team.users import MAX_WAIT_SECONDS, UnknownUser, UserError, UserStore, wait_after
+from bendline.app.store.redis_store import StoreUnavailable
+from bendline.app.team.users import MAX_WAIT_SECONDS, UnknownUser, UserError, UserStore, wait_after
 
 from .redis_server import free_port
 

@@ -6,7 +6,7 @@ import math
 
 import pytest
 
-from app import wording
+from bendline.app import wording
 
 
 def _result(q05, q50, q95, p_grow, doubling=None, halving=None):

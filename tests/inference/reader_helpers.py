@@ -2,7 +2,7 @@
 
 import pytest
 
-from inference.errors import InputError
+from bendline.inference.errors import InputError
 
 
 def error_of(func, *args, **kwargs):

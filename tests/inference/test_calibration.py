@@ -24,11 +24,11 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from inference.driver import run
-from inference.model import TrendModel
-from inference.series import Series
-from inference.sinks import MemorySink
-from inference.spec import ModelSpec, RunSettings
+from bendline.inference.driver import run
+from bendline.inference.model import TrendModel
+from bendline.inference.series import Series
+from bendline.inference.sinks import MemorySink
+from bendline.inference.spec import ModelSpec, RunSettings
 
 N_SERIES = 40
 REPLICATES = 160
@@ -132,7 +132,7 @@ def _log_trend_mean_k(knots, levels):
 
 @pytest.mark.slow
 def test_rank_statistics_are_uniform_with_close_change_dates_near_an_end():
-    from inference.spec import ChangepointPrior
+    from bendline.inference.spec import ChangepointPrior
 
     rng = np.random.default_rng(303)
     spread = 4.0

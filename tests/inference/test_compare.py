@@ -5,9 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from inference.compare import compare_segments, support_from_fits
-from inference.errors import InputError
-from inference.simulate import simulate
+from bendline.inference.compare import compare_segments, support_from_fits
+from bendline.inference.errors import InputError
+from bendline.inference.simulate import simulate
 
 
 def _fit(k, pointwise, feasible=True):
@@ -77,13 +77,13 @@ def test_loo_of_a_real_fit_matches_arviz():
     # draws, with the same relative efficiency (Vehtari, Gelman & Gabry 2017).
     import arviz as az
 
-    from inference.compare import LOO_DRAWS, loo_summary
-    from inference.driver import run
-    from inference.loo import relative_eff
-    from inference.model import TrendModel
-    from inference.sinks import MemorySink
-    from inference.spec import ModelSpec, RunSettings
-    from inference.summaries import reported_quantities
+    from bendline.inference.compare import LOO_DRAWS, loo_summary
+    from bendline.inference.driver import run
+    from bendline.inference.loo import relative_eff
+    from bendline.inference.model import TrendModel
+    from bendline.inference.sinks import MemorySink
+    from bendline.inference.spec import ModelSpec, RunSettings
+    from bendline.inference.summaries import reported_quantities
 
     series, _ = simulate(np.random.default_rng(8), "2026-01-05", 80, start_level=25.0,
                          knot_days=[40.0], growth_rate_per_day=[0.03, -0.03])

@@ -14,10 +14,10 @@ import math
 import numpy as np
 import pytest
 
-from inference.defaults import growth_prior_default, min_segment_default, resolve, steepest_rate_per_day
-from inference.errors import InputError
-from inference.series import Series
-from inference.spec import ModelSpec
+from bendline.inference.defaults import growth_prior_default, min_segment_default, resolve, steepest_rate_per_day
+from bendline.inference.errors import InputError
+from bendline.inference.series import Series
+from bendline.inference.spec import ModelSpec
 
 
 def _snow_attacks():

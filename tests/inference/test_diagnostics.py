@@ -28,7 +28,7 @@ with warnings.catch_warnings():
     warnings.simplefilter("ignore", FutureWarning)
     import arviz as az
 
-from inference import diagnostics as dg
+from bendline.inference import diagnostics as dg
 
 logging.getLogger("arviz").setLevel(logging.ERROR)
 

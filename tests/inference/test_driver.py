@@ -7,10 +7,10 @@ import json
 
 import numpy as np
 
-from inference import SCHEMA_VERSION
-from inference.driver import _stuck_chains, run
-from inference.sinks import MemorySink
-from inference.spec import ModelSpec, RunSettings
+from bendline.inference import SCHEMA_VERSION
+from bendline.inference.driver import _stuck_chains, run
+from bendline.inference.sinks import MemorySink
+from bendline.inference.spec import ModelSpec, RunSettings
 
 SPEC = ModelSpec(segments=3, family="negbin")
 
@@ -110,7 +110,7 @@ def test_a_chain_found_stuck_after_warmup_is_dropped_and_reported(small_series, 
     # The detection itself is tested above; here the run's wiring: a chain
     # flagged after warm-up leaves the run, the sink and the counts, and the
     # final snapshot names it.
-    import inference.driver as drv
+    import bendline.inference.driver as drv
 
     real = drv._stuck_chains
     calls = {"n": 0}

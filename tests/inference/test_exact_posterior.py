@@ -21,12 +21,12 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from inference import diagnostics
-from inference.driver import run
-from inference.model import TrendModel
-from inference.series import Series
-from inference.sinks import MemorySink
-from inference.spec import ModelSpec, RunSettings
+from bendline.inference import diagnostics
+from bendline.inference.driver import run
+from bendline.inference.model import TrendModel
+from bendline.inference.series import Series
+from bendline.inference.sinks import MemorySink
+from bendline.inference.spec import ModelSpec, RunSettings
 
 N = 40
 MIN_SEG = 7.0

@@ -7,9 +7,9 @@ import copy
 import numpy as np
 import pytest
 
-from inference import diagnostics
-from inference.driver import warmup_schedule
-from inference.hmc import (
+from bendline.inference import diagnostics
+from bendline.inference.driver import warmup_schedule
+from bendline.inference.hmc import (
     ChEES,
     DualAveraging,
     Params,

@@ -29,7 +29,7 @@ with warnings.catch_warnings():
     warnings.simplefilter("ignore", FutureWarning)
     import arviz as az
 
-from inference import loo as L
+from bendline.inference import loo as L
 
 logging.getLogger("arviz").setLevel(logging.ERROR)
 pytestmark = pytest.mark.filterwarnings("ignore::UserWarning")

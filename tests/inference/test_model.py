@@ -14,10 +14,10 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from inference.errors import InputError
-from inference.model import TrendModel
-from inference.series import Series
-from inference.spec import ChangepointPrior, ModelSpec
+from bendline.inference.errors import InputError
+from bendline.inference.model import TrendModel
+from bendline.inference.series import Series
+from bendline.inference.spec import ChangepointPrior, ModelSpec
 
 
 def _theta(model, rng, knots=(40.3, 80.7), phi=15.0):

@@ -10,9 +10,9 @@ FORBIDDEN = ("dash", "flask", "diskcache", "celery", "redis", "plotly", "werkzeu
 
 def test_inference_imports_no_web_cache_or_queue_modules():
     code = (
-        "import sys, pkgutil, importlib, inference\n"
+        "import sys, pkgutil, importlib, bendline.inference as inference\n"
         "for m in pkgutil.iter_modules(inference.__path__):\n"
-        "    importlib.import_module('inference.' + m.name)\n"
+        "    importlib.import_module('bendline.inference.' + m.name)\n"
         f"bad = sorted(k for k in sys.modules if k.split('.')[0] in {FORBIDDEN!r})\n"
         "print(','.join(bad))\n"
     )

@@ -4,8 +4,8 @@ Separators, encodings, line ends, quoting, blank rows, the header, and the size
 and row limits; one test per reading rule, on small invented files.
 """
 
-from inference import reader
-from inference.reader import list_regions, read_series, read_table
+from bendline.inference import reader
+from bendline.inference.reader import list_regions, read_series, read_table
 
 from .reader_helpers import DAILY, error_of, notes_of
 

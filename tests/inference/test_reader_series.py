@@ -6,8 +6,8 @@ and the data-quality notes; one test per reading rule, on small invented files.
 
 import numpy as np
 
-from inference.reader import list_regions, read_all_regions, read_series
-from inference.series import NOTE_KINDS, DataQualityNote, Series
+from bendline.inference.reader import list_regions, read_all_regions, read_series
+from bendline.inference.series import NOTE_KINDS, DataQualityNote, Series
 
 from .reader_helpers import DAILY, error_of, kinds, notes_of
 

@@ -7,7 +7,7 @@ invented files.
 
 import numpy as np
 
-from inference.reader import read_series
+from bendline.inference.reader import read_series
 
 from .reader_helpers import error_of, notes_of
 

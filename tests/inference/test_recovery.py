@@ -12,8 +12,8 @@ import os
 
 import pytest
 
-from inference.fitting import fit_result
-from inference.reader import read_series
+from bendline.inference.fitting import fit_result
+from bendline.inference.reader import read_series
 
 SAMPLES = os.path.join(os.path.dirname(__file__), "..", "..", "sample_series")
 

@@ -16,11 +16,11 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from inference.conditional import Binned, conditional_mode, design, linear_index, offsets
-from inference.init import find_starts
-from inference.model import TrendModel
-from inference.relocate import knot_log_density, move, orbit
-from inference.spec import ModelSpec
+from bendline.inference.conditional import Binned, conditional_mode, design, linear_index, offsets
+from bendline.inference.init import find_starts
+from bendline.inference.model import TrendModel
+from bendline.inference.relocate import knot_log_density, move, orbit
+from bendline.inference.spec import ModelSpec
 
 SPECS = {
     "continuous, negbin, weekday": ModelSpec(segments=4, family="negbin"),

@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from inference.errors import InputError
-from inference.reproduction import gamma_gi, reproduction_number
+from bendline.inference.errors import InputError
+from bendline.inference.reproduction import gamma_gi, reproduction_number
 
 
 @pytest.fixture

@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from inference.sinks import MemorySink
+from bendline.inference.sinks import MemorySink
 
 SINKS = [MemorySink]
 

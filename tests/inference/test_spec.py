@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import pytest
 
-from inference.errors import InputError
-from inference.spec import ModelSpec, RunSettings, options_from_spec, spec_from_options
+from bendline.inference.errors import InputError
+from bendline.inference.spec import ModelSpec, RunSettings, options_from_spec, spec_from_options
 
 
 def test_flat_options_split_into_model_and_run():

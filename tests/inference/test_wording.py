@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import math
 
-from inference.direction import direction, pct_block
-from inference.wording import headline_stats, summary_sentence
+from bendline.inference.direction import direction, pct_block
+from bendline.inference.wording import headline_stats, summary_sentence
 
 import numpy as np
 

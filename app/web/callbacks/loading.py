@@ -7,10 +7,10 @@ import os
 
 from dash import Input, Output, State, ctx, html, no_update
 
-from inference.errors import InputError
-from inference.reader import list_regions, read_series
+from bendline.inference.errors import InputError
+from bendline.inference.reader import list_regions, read_series
 
-from inference.options import public_options
+from bendline.inference.options import public_options
 
 from .. import ids
 from ..context import decode_upload, get_series, put_series, services, store_guarded

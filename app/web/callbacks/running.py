@@ -6,9 +6,9 @@ from dash import Input, Output, State, ctx, dcc, html, no_update
 
 import numpy as np
 
-from inference.errors import InputError
-from inference.options import BY_NAME as OPTION_BY_NAME
-from inference.options import engine_options, label_for
+from bendline.inference.errors import InputError
+from bendline.inference.options import BY_NAME as OPTION_BY_NAME
+from bendline.inference.options import engine_options, label_for
 
 from ...runs import QueueUnavailable
 from .. import ids

@@ -12,7 +12,7 @@ from __future__ import annotations
 import plotly.graph_objects as go
 
 from .. import theme as th
-from inference.wording import fmt_prob
+from bendline.inference.wording import fmt_prob
 
 from .common import (MS_PER_DAY, change_colour, day_to_x, default_x_range, empty_figure, has_fit,
                      highlight_shape, interval_of, label_date, num, nums, status_badge, status_note)

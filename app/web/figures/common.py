@@ -15,7 +15,7 @@ import textwrap
 
 import plotly.graph_objects as go
 
-from inference.wording import verdict_of
+from bendline.inference.wording import verdict_of
 
 from .. import theme as th
 

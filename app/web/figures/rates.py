@@ -22,7 +22,7 @@ import math
 import plotly.graph_objects as go
 
 from .. import theme as th
-from inference.wording import INTERVAL, direction_of, fmt_pct, fmt_prob, growth_block, time_text, unit_of
+from bendline.inference.wording import INTERVAL, direction_of, fmt_pct, fmt_prob, growth_block, time_text, unit_of
 
 from .common import empty_figure, label_date, num, parse_date, status_badge, status_note
 

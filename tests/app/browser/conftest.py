@@ -48,7 +48,7 @@ class Server:
         env = dict(os.environ, PYTHONPATH=ROOT)
         self.log = open(os.path.join(self.data_dir, f"server-{self.port}.log"), "ab")
         self.proc = subprocess.Popen(
-            [sys.executable, "-m", "app.cli", "serve", "--port", str(self.port), "--data-dir", self.data_dir,
+            [sys.executable, "-m", "bendline.app.cli", "serve", "--port", str(self.port), "--data-dir", self.data_dir,
              *self.args],
             cwd=ROOT, env=env, stdout=self.log, stderr=subprocess.STDOUT, start_new_session=True,
         )

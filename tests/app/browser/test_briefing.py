@@ -10,9 +10,9 @@ import time
 
 import pytest
 
-from app import wording
-from app.reports import TABLES
-from inference.result import CAUTIONS
+from bendline.app import wording
+from bendline.app.reports import TABLES
+from bendline.inference.result import CAUTIONS
 
 from .conftest import Server, hold_fit_open, wait_for_graph
 

@@ -14,8 +14,8 @@ from __future__ import annotations
 import json
 import os
 
-from inference.fitting import fit_result
-from inference.reader import read_series
+from bendline.inference.fitting import fit_result
+from bendline.inference.reader import read_series
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(HERE)))

@@ -27,11 +27,11 @@ class Worker:
         self.proc = None
 
     def start(self, timeout=60):
-        from app.store.redis_store import RedisRunStore
+        from bendline.app.store.redis_store import RedisRunStore
 
         self.log = open(self.log_path, "ab")
         self.proc = subprocess.Popen(
-            [sys.executable, "-m", "app.cli", "worker", "--redis", self.redis_url, "--name", self.name,
+            [sys.executable, "-m", "bendline.app.cli", "worker", "--redis", self.redis_url, "--name", self.name,
              "--concurrency", str(self.concurrency), "--loglevel", "INFO"],
             cwd=ROOT, env=dict(os.environ, PYTHONPATH=ROOT), stdout=self.log, stderr=subprocess.STDOUT,
             start_new_session=True,
@@ -66,7 +66,7 @@ class Worker:
 
 @pytest.fixture
 def team_users(redis_url):
-    from app.team.users import UserStore
+    from bendline.app.team.users import UserStore
 
     users = UserStore(redis_url)
     users.add(ADMIN, ADMIN_PW, admin=True)

@@ -13,7 +13,7 @@ PUBLIC = re.compile(r"^/(login|_favicon\.ico|assets/.*|_dash-component-suites/.*
 
 @pytest.fixture
 def client(redis_url, team_users):
-    from app.team.wsgi import build_team_app
+    from bendline.app.team.wsgi import build_team_app
 
     app = build_team_app(redis_url, cookie_secure=True, maintain=False)
     app.server.config["TESTING"] = True

@@ -91,7 +91,7 @@ def test_a_fit_runs_on_a_worker_and_the_api_returns_its_result(api, workers):
 
 
 def test_a_killed_worker_leaves_a_failed_run_and_others_carry_on(api, workers, redis_url):
-    from app.store.redis_store import RedisRunStore
+    from bendline.app.store.redis_store import RedisRunStore
 
     store = RedisRunStore(redis_url)
     w1, w2 = workers("w1"), workers("w2")
@@ -156,7 +156,7 @@ def test_runs_results_and_users_survive_a_web_server_restart(redis_url, team_use
 
 
 def test_an_unreachable_redis_is_reported_quickly_and_work_resumes(tmp_path):
-    from app.team.users import UserStore
+    from bendline.app.team.users import UserStore
 
     redis = RedisServer(tmp_path / "own-redis", appendonly=True).start()
     worker = None
@@ -192,7 +192,7 @@ def test_an_unreachable_redis_is_reported_quickly_and_work_resumes(tmp_path):
 
 
 def test_a_run_from_another_engine_version_is_refused_with_the_reason(redis_url, workers, api):
-    from app.store.redis_store import RedisRunStore
+    from bendline.app.store.redis_store import RedisRunStore
 
     workers("w1")
     run = api.submit_file(SAMPLE, LONG)
@@ -202,7 +202,7 @@ def test_a_run_from_another_engine_version_is_refused_with_the_reason(redis_url,
     store = RedisRunStore(redis_url)
     rec = dict(store.get_run(run["id"]), id="f" * 16, status="queued", code_version="0.0.0-elsewhere")
     store.create_run(rec, store.get_series(run["id"]))
-    from app.team.tasks import CeleryExecutor
+    from bendline.app.team.tasks import CeleryExecutor
 
     CeleryExecutor(redis_url).submit("f" * 16)
     failed = api.wait("f" * 16, ("failed",), timeout=60)
