@@ -6,7 +6,9 @@ Endpoints (all under ``/api/v1``, all answering JSON):
 * ``GET /runs``: the runs, newest first.
 * ``GET /runs/<id>``: one run's status, progress and, once finished, its
   JSON result (the same document ``bendline fit`` writes).
-* ``DELETE /runs/<id>``: stop a run (its owner or an admin); 202.
+* ``POST /runs/<id>/stop``: stop a run (its owner or an admin); 202.
+* ``DELETE /runs/<id>``: delete a run and its data (its owner or an admin),
+  stopping it first; 200 when gone, 202 while its worker stops.
 
 Input is validated here, at the edge: a bad file, option or request gets a
 4xx answer whose ``error`` object says what is wrong and where (file, row,
@@ -134,7 +136,7 @@ def get_run(run_id):
     return jsonify(_run_view(runs, rec))
 
 
-@api.delete("/runs/<run_id>")
+@api.post("/runs/<run_id>/stop")
 def stop_run(run_id):
     """Ask a run to stop (its owner or an admin); the draws so far are kept."""
     runs = services().runs
@@ -150,6 +152,28 @@ def stop_run(run_id):
     return jsonify(_run_view(runs, rec)), 202
 
 
+@api.delete("/runs/<run_id>")
+def delete_run(run_id):
+    """Delete a run and everything stored for it (its owner or an admin); a running one is stopped first.
+
+    200 ``{"deleted": true}`` when it is gone; 202 ``{"deleted": false,
+    "status": "deleting"}`` while its worker stops (it then removes it).
+    """
+    runs = services().runs
+    if not valid_run_id(run_id) or runs.get(run_id) is None:
+        return _error(404, _NO_SUCH_RUN)
+    user, admin = current_user()
+    try:
+        gone = runs.delete(run_id, user=user, admin=admin)
+    except KeyError:
+        return _error(404, _NO_SUCH_RUN)
+    except PermissionError as exc:
+        return _error(403, str(exc))
+    if gone:
+        return jsonify({"id": run_id, "deleted": True}), 200
+    return jsonify({"id": run_id, "deleted": False, "status": "deleting"}), 202
+
+
 @api.route("/", defaults={"rest": ""}, methods=["GET", "POST", "PUT", "PATCH", "DELETE"])
 @api.route("/<path:rest>", methods=["GET", "POST", "PUT", "PATCH", "DELETE"])
 def unknown_endpoint(rest):
@@ -159,6 +183,8 @@ def unknown_endpoint(rest):
         return _wrong_method("GET, POST")
     if re.fullmatch(r"runs/[^/]+", rest):
         return _wrong_method("GET, DELETE")
+    if re.fullmatch(r"runs/[^/]+/stop", rest):
+        return _wrong_method("POST")
     if rest.startswith("runs/"):  # an id holding a slash: never a run
         return _error(404, _NO_SUCH_RUN)
     return _error(404, "no such endpoint; the API has /api/v1/runs and /api/v1/runs/<id>")

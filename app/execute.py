@@ -55,15 +55,18 @@ def execute_run(store_location, run_id, *, store=None):
     if not store.claim(run_id, "execute"):
         return "duplicate"  # another worker already took this run
     started = time.time()
+    me = f"{socket.gethostname()}:{os.getpid()}"
     store.heartbeat(run_id, started)
-    store.update_run(run_id, status="running", started_at=now_iso(),
-                     worker=f"{socket.gethostname()}:{os.getpid()}")
+    store.update_run(run_id, status="running", started_at=now_iso(), worker=me)
     beating = threading.Event()
     threading.Thread(target=_beat, args=(store, run_id, beating), daemon=True).start()
     poll = {"t": 0.0, "stop": False}
 
     def on_snapshot(snap):
-        store.put_snapshot(run_id, snap)
+        try:
+            store.put_snapshot(run_id, snap)
+        except ConnectionError:
+            pass  # the store is away for a moment: the next snapshot will do
 
     def should_stop():
         now = time.time()
@@ -81,13 +84,10 @@ def execute_run(store_location, run_id, *, store=None):
             series, rec["options"], sink=StoreSink(store, run_id),
             on_snapshot=on_snapshot, should_stop=should_stop, given=rec.get("spec"),
         )
-        if final is not None:
-            store.put_snapshot(run_id, final)
         if result is not None:
             result["run_id"] = run_id
             if rec.get("kind") == "segment-count":
                 result["loo"] = _loo(series, rec["options"], store, run_id, final)
-            store.put_result(run_id, result)
         status = final["status"] if final else "failed"
         fields = {
             "status": status,
@@ -101,22 +101,58 @@ def execute_run(store_location, run_id, *, store=None):
             fields["reason"] = "stopped by request; the draws so far are kept" if result else \
                 "stopped during warm-up; no draws were kept"
         elif status == "unconverged":
-            fields["reason"] = "the time budget or draw limit ended before convergence"
-        store.update_run(run_id, **fields)
+            fields["reason"] = {"time budget": "the time budget (max_seconds) ended before convergence",
+                                "draw limit": "the draw limit (max_draws) was reached before convergence"}.get(
+                (final or {}).get("ended_by"), "the run ended before convergence")
+        _finish(store, run_id, me, fields, final, result)
         return status
     except InputError as exc:
-        store.update_run(run_id, status="failed", reason=str(exc), finished_at=now_iso())
+        _finish(store, run_id, me, {"status": "failed", "reason": str(exc), "finished_at": now_iso()})
         return "failed"
     except MemoryError:
-        store.update_run(run_id, status="failed", finished_at=now_iso(),
-                         reason="the worker ran out of memory; try fewer chains or draws")
+        _finish(store, run_id, me, {"status": "failed", "finished_at": now_iso(),
+                                    "reason": "the worker ran out of memory; try fewer chains or draws"})
         return "failed"
     except Exception as exc:  # report, never hang
-        store.update_run(run_id, status="failed", finished_at=now_iso(),
-                         reason=f"internal error in the worker ({type(exc).__name__}: {exc})")
+        _finish(store, run_id, me, {"status": "failed", "finished_at": now_iso(),
+                                    "reason": f"internal error in the worker ({type(exc).__name__}: {exc})"})
         return "failed"
     finally:
         beating.set()
+
+
+#: How long a finished worker keeps trying to write its result while the
+#: store is unreachable (seconds).
+WRITE_PATIENCE = 900.0
+
+
+def _finish(store, run_id, me, fields, final=None, result=None, *, sleep=time.sleep, clock=time.monotonic):
+    """Write a run's final state once, and only while this worker still holds it.
+
+    The status goes first, conditionally (:meth:`RunStore.update_run_if`):
+    a run the server has meanwhile marked failed, or one deleted, keeps its
+    state and gets nothing from this worker. A run marked for deletion is
+    removed here, by the worker that held it. While the store is away the
+    write is retried for :data:`WRITE_PATIENCE` seconds.
+    """
+    deadline = clock() + WRITE_PATIENCE
+    while True:
+        try:
+            rec = store.get_run(run_id)
+            if rec is not None and rec.get("delete_requested"):
+                store.delete_run(run_id)
+                return False
+            if store.update_run_if(run_id, {"status": "running", "worker": me}, **fields) is None:
+                return False  # failed by the server, taken over, or deleted: not ours to write
+            if final is not None:
+                store.put_snapshot(run_id, final)
+            if result is not None:
+                store.put_result(run_id, result)
+            return True
+        except ConnectionError:
+            if clock() > deadline:
+                return False
+            sleep(2.0)
 
 
 def _loo(series, options, store, run_id, final):
@@ -134,10 +170,14 @@ def _beat(store, run_id, done):
     """Write the run's heartbeat every few seconds while the fit runs.
 
     A separate thread, so a long start search or convergence check never
-    looks like a dead worker; a killed process stops beating at once.
+    looks like a dead worker; a killed process stops beating at once. While
+    the store is away it retries every second, so the heartbeat resumes as
+    soon as the store is back.
     """
-    while not done.wait(HEARTBEAT_EVERY):
+    wait = HEARTBEAT_EVERY
+    while not done.wait(wait):
         try:
             store.heartbeat(run_id, time.time())
+            wait = HEARTBEAT_EVERY
         except ConnectionError:
-            pass
+            wait = 1.0

@@ -20,6 +20,22 @@ from .runs import now_iso
 from .store import FINISHED
 
 
+def die_with_parent():
+    """Pool initializer: the worker process is killed when the server process dies (Linux).
+
+    Without it, a server killed mid-fit (SIGKILL) leaves its pool processes
+    fitting on; the restarted server has already marked their runs failed.
+    """
+    try:
+        import ctypes
+        import signal
+
+        libc = ctypes.CDLL("libc.so.6", use_errno=True)
+        libc.prctl(1, signal.SIGKILL)  # PR_SET_PDEATHSIG
+    except (OSError, AttributeError):
+        pass  # not Linux: the run's final state is still written only by its holder
+
+
 def _warm():
     """Import the engine in a fresh worker so the first fit starts at once."""
     import bendline.inference.fitting  # noqa: F401
@@ -48,7 +64,8 @@ class LocalExecutor:
         with self._lock:
             if self._pool is None:
                 ctx = multiprocessing.get_context("spawn")
-                self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=ctx)
+                self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=ctx,
+                                                 initializer=die_with_parent)
             return self._pool
 
     def warm_up(self):

@@ -65,6 +65,7 @@ class RunService:
     def __init__(self, store, executor, *, instance=None, clock=time.time, max_in_flight=None):
         self.store = store
         self.executor = executor
+        self.store_trouble_at = float("-inf")
         self.instance = instance or f"{socket.gethostname()}:{os.getpid()}:{secrets.token_hex(4)}"
         self.clock = clock
         self.max_in_flight = max_in_flight
@@ -108,11 +109,17 @@ class RunService:
             "server_instance": self.instance,
             "held": False,
         }
-        if self.max_in_flight is not None and self.in_flight(owner) >= self.max_in_flight:
-            record["held"] = True
-            record["reason"] = (f"waiting: you already have {self.max_in_flight} runs queued or running; "
-                                "this one starts when one of them finishes")
-        self.store.create_run(record, series.to_dict())
+        if self.max_in_flight is not None:
+            # the count and the new record in one step: simultaneous submissions
+            # cannot all see room for themselves
+            with self.store.lock(f"inflight:{owner}"):
+                if self.in_flight(owner) >= self.max_in_flight:
+                    record["held"] = True
+                    record["reason"] = (f"waiting: you already have {self.max_in_flight} runs queued or running; "
+                                        "this one starts when one of them finishes")
+                self.store.create_run(record, series.to_dict())
+        else:
+            self.store.create_run(record, series.to_dict())
         if not record["held"]:
             self._queue(run_id)
         return record
@@ -183,14 +190,24 @@ class RunService:
         return rec
 
     def delete(self, run_id, *, user=None, admin=False):
+        """Delete a run and its data; only its owner or an admin may.
+
+        A finished run goes at once (True). An unfinished one is asked to stop
+        and marked for deletion; its worker removes it when it stops (False),
+        so no worker writes into a run that is gone.
+        """
         rec = self.store.get_run(run_id)
         if rec is None:
             raise KeyError(run_id)
         if user is not None and not admin and rec.get("owner") != user:
             raise PermissionError("only the run's owner or an admin can delete it")
         if rec["status"] not in FINISHED:
-            self.store.request_stop(run_id)
-        self.store.delete_run(run_id)
+            self.store.update_run(run_id, delete_requested=True)
+            rec = self.stop(run_id, user=user, admin=admin)
+        if rec["status"] in FINISHED:
+            self.store.delete_run(run_id)
+            return True
+        return False
 
     # -- reading
     def get(self, run_id):
@@ -216,17 +233,28 @@ class RunService:
         return None if d is None else Series.from_dict(d)
 
     def _reap(self, rec):
-        """Mark a running run failed when its worker stopped beating."""
+        """Mark a running run failed when its worker stopped beating.
+
+        Not within a heartbeat period of this server last failing to reach
+        the store: the workers could not beat either, and they resume when
+        the store is back.
+        """
         if rec["status"] != "running":
             return rec
         beat = self.store.last_heartbeat(rec["id"])
-        if beat is not None and self.clock() - beat > HEARTBEAT_TIMEOUT:
-            return self.store.update_run(
-                rec["id"], status="failed", finished_at=now_iso(),
-                reason=f"the worker stopped responding (no heartbeat for {HEARTBEAT_TIMEOUT:.0f} s); "
-                       "it may have been killed. Resubmit the run.",
+        now = self.clock()
+        if beat is not None and now - beat > HEARTBEAT_TIMEOUT and now - self.store_trouble_at > HEARTBEAT_TIMEOUT:
+            failed = self.store.update_run_if(
+                rec["id"], {"status": "running"}, status="failed", finished_at=now_iso(),
+                reason=f"the worker sent no heartbeat for {HEARTBEAT_TIMEOUT:.0f} s while the store was up: it "
+                       "was killed, crashed or lost its connection. Resubmit the run.",
             )
+            return failed or self.store.get_run(rec["id"]) or rec
         return rec
+
+    def store_unreachable(self):
+        """Note that the store could not be reached just now (see :meth:`_reap`)."""
+        self.store_trouble_at = self.clock()
 
     def fail_orphans(self):
         """On a local server's start: runs an earlier server left unfinished are marked failed."""

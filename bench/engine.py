@@ -48,6 +48,7 @@ from cases import HARD_CASES, reference_problem, ten_year_problem, write_regions
 
 def run_bendline(which, seed=11):
     from bendline.inference.driver import run
+    from bendline.inference.model import TrendModel
     from bendline.inference.spec import ModelSpec, RunSettings
 
     series, K = reference_problem() if which == "reference" else ten_year_problem()
@@ -56,7 +57,7 @@ def run_bendline(which, seed=11):
     settings = RunSettings(seed=seed, max_seconds=300, snapshot_summaries=False)
     t0 = time.perf_counter()
     final = None
-    for snap in run(series, spec, settings):
+    for snap in run(TrendModel(series, spec), settings):
         final = snap
     seconds = time.perf_counter() - t0
     d = final["diagnostics"]
@@ -150,7 +151,7 @@ def run_throughput(seed=11):
     settings = RunSettings(seed=seed, chains=32, draws=1000, max_draws=1000, snapshot_summaries=False,
                            snapshot_every=1000)
     t0 = time.perf_counter()
-    for snap in run(series, spec, settings):
+    for snap in run(TrendModel(series, spec), settings):
         final = snap
     seconds = time.perf_counter() - t0
     d = final["diagnostics"]

@@ -74,7 +74,7 @@ def segment_fit(series_dict, options, k):
         return {"segments": k, "feasible": False, "reason": exc.detail}
     sink = MemorySink()
     final = None
-    for final in run(series, model_spec, settings, sink=sink):
+    for final in run(model, settings, sink=sink):
         pass
     pos, _ = sink.read()
     return dict(loo_summary(model, pos, final), segments=k)

@@ -1,11 +1,15 @@
 """The sampling run as a generator of JSON-safe snapshots.
 
-``run(series, model_spec, settings)`` yields a snapshot (a small dictionary
-with a schema version) every ``settings.snapshot_every`` iterations, through
-the phases ``init`` (mode search), ``warmup`` (adaptation) and ``sampling``,
-and ends with one whose phase is ``done``. Raw draws go to the sink; the
-snapshots carry only summaries. Every consumer (CLI, tests, local worker,
-Celery worker) drains the same generator.
+``run(model, settings)`` yields a snapshot (a small dictionary with a schema
+version) every ``settings.snapshot_every`` iterations, through the phases
+``init`` (mode search), ``warmup`` (adaptation) and ``sampling``, and ends
+with one whose phase is ``done``. Raw draws go to the sink; the snapshots
+carry only summaries. Every consumer (CLI, tests, local worker, Celery
+worker) drains the same generator. The stages are separate functions:
+:func:`start`, the generators :func:`warmup` and :func:`sample`, sharing a
+:class:`Run` (model, settings, random streams, counters, time budget) and
+passing the sampler's state and its :class:`Tuning` between them. The time
+budget counts the whole fit, from the start search on.
 
 The warm-up schedule is plain data (:func:`warmup_schedule`): a fast window
 for the step size, slow windows of doubling length at whose ends the dense
@@ -24,6 +28,7 @@ from __future__ import annotations
 import ctypes
 import math
 import time
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy.linalg import solve_triangular
@@ -32,7 +37,6 @@ from .snapshots import ESS_MIN, RHAT_MAX, Progress
 from .conditional import Binned
 from .hmc import ChEES, DualAveraging, Params, State, Target, fisher_chol, init_state, step
 from .init import find_starts
-from .model import TrendModel
 from .relocate import move as relocate_move
 from .sinks import MemorySink
 
@@ -115,13 +119,50 @@ def reserve_heap():
         pass
 
 
-def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time.monotonic):
+@dataclass
+class Run:
+    """What every stage of one run shares: the model, settings, streams, counters, budget.
+
+    Built once by :func:`run`; the stages read it and record their timings
+    in it. It holds no sampler state: that passes between the stages as
+    :class:`hmc.State` and :class:`Tuning`.
+    """
+
+    model: object
+    settings: object
+    sink: object
+    should_stop: object
+    clock: object
+    t0: float
+    rng: np.random.Generator  # the chains' stream
+    rng_init: np.random.Generator  # the start search's stream
+    progress: Progress
+    target: Target
+    binned: Binned
+    warmup: int
+    timings: dict = field(default_factory=dict)
+
+    def over_budget(self):
+        """True once the whole fit (start search included) has used its time budget."""
+        return self.clock() - self.t0 > self.settings.max_seconds
+
+
+@dataclass(frozen=True)
+class Tuning:
+    """The sampler's settings at the end of warm-up: plain data."""
+
+    step_size: float
+    trajectory_length: float
+    chol: np.ndarray
+    relocate_every: int
+
+
+def run(model, settings, *, sink=None, should_stop=None, clock=time.monotonic):
     """Fit the model, yielding snapshots.
 
     Parameters
     ----------
-    series : Series
-    model_spec : ModelSpec
+    model : TrendModel
     settings : RunSettings
     sink : object, optional
         Draw store with ``reset(chains, names)`` and ``append(pos, lp)``;
@@ -135,51 +176,65 @@ def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time
     Yields
     ------
     dict
-        Snapshots; the last has ``phase == "done"`` and a ``status`` of
-        ``converged``, ``stopped`` or ``unconverged`` (time budget or draw
-        limit reached first).
+        Snapshots; the last has ``phase == "done"``, a ``status`` of
+        ``converged``, ``stopped`` or ``unconverged``, and ``ended_by``:
+        ``criterion``, ``stop request``, ``draw limit`` or ``time budget``.
     """
     reserve_heap()
-    model = TrendModel(series, model_spec)
-    sink = MemorySink() if sink is None else sink
-    should_stop = should_stop or (lambda: False)
     seeds = np.random.SeedSequence(settings.seed).spawn(3)
-    rng = np.random.default_rng(seeds[0])
-    rng_init = np.random.default_rng(seeds[1])
-    rng_summary = np.random.default_rng(seeds[2])
     t0 = clock()
-    timings = {}
-    target = Target(model.log_density, model.grad)
-    C = settings.chains
     W = settings.warmup or default_warmup(model)
-    progress = Progress(model, settings, t0, clock, rng_summary)
-    yield progress.snapshot("init", 0, W)
+    ctx = Run(model=model, settings=settings, sink=MemorySink() if sink is None else sink,
+              should_stop=should_stop or (lambda: False), clock=clock, t0=t0,
+              rng=np.random.default_rng(seeds[0]), rng_init=np.random.default_rng(seeds[1]),
+              progress=Progress(model, settings, t0, clock, np.random.default_rng(seeds[2])),
+              target=Target(model.log_density, model.grad), binned=Binned.of(model), warmup=W)
+    yield ctx.progress.snapshot("init", 0, W)
+    state, chol = start(ctx)
+    if state is None:  # the time budget ran out in the start search
+        yield _final(ctx, "unconverged", "time budget", 0, None)
+        return
+    yield ctx.progress.snapshot("warmup", 0, W, positions=state.position)  # a first band at once
+    state, tuning, ended_by = yield from warmup(ctx, state, chol)
+    yield from sample(ctx, state, tuning, ended_by)
 
-    # -- starting points
-    modes, mode_lp, chol = find_starts(model, rng_init)
+
+def start(ctx):
+    """The chains' starting points: (state, preconditioner), or (None, None) past the budget."""
+    model, C = ctx.model, ctx.settings.chains
+    modes, mode_lp, chol = find_starts(model, ctx.rng_init, deadline=ctx.t0 + ctx.settings.max_seconds,
+                                       clock=ctx.clock)
+    ctx.timings["init_seconds"] = ctx.clock() - ctx.t0
+    if ctx.over_budget():
+        return None, None
     good = modes[mode_lp >= mode_lp[0] - STUCK_GAP]
     starts = good[np.arange(C) % good.shape[0]]
-    starts = starts + rng_init.standard_normal((C, model.dim)) @ chol.T
-    state = init_state(target, starts)
+    starts = starts + ctx.rng_init.standard_normal((C, model.dim)) @ chol.T
+    state = init_state(ctx.target, starts)
     bad = ~np.isfinite(state.log_density)
     if np.any(bad):
         starts[bad] = modes[0]
-        state = init_state(target, starts)
-    timings["init_seconds"] = clock() - t0
-    progress.mode_lp = float(mode_lp[0])
-    # a first band from the starting points, so a watcher sees the fit at once
-    yield progress.snapshot("warmup", 0, W, positions=state.position)
-    last_yield = clock()
+        state = init_state(ctx.target, starts)
+    ctx.progress.mode_lp = float(mode_lp[0])
+    return state, chol
 
-    # -- warm-up
+
+def warmup(ctx, state, chol):
+    """Adapt step size, trajectory length and preconditioner; a generator of snapshots.
+
+    Returns (through ``yield from``) the chains' state, the :class:`Tuning`
+    and why sampling should not start (None, ``stop request`` or ``time
+    budget``). Chains still stuck far below the others at the end are
+    dropped here.
+    """
+    model, rng, target, progress, W = ctx.model, ctx.rng, ctx.target, ctx.progress, ctx.warmup
     eps = _initial_step_size(rng, state, target, chol)
     da = DualAveraging(eps, target=TARGET_ACCEPT)
-    binned = Binned.of(model)
     chees = ChEES(trajectory_length=1.0, max_length=MAX_LEAPFROG * eps)
-    it = 0
-    late_warmup = None  # relocation counters at the middle of warm-up
-    restarted = 0
-    stopped = False
+    it, restarted, ended_by = 0, 0, None
+    late = None  # relocation counters at the middle of warm-up
+    last_yield = ctx.clock()
+    win_lp = []
     for kind, length in warmup_schedule(W):
         win_lp, win_grad = [], []
         last_window = kind == "fast" and it + length >= W
@@ -190,9 +245,9 @@ def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time
             state, info = step(rng, state, target, Params(eps, n_steps, chol))
             it += 1
             if model.K > 1 and it % RELOCATE_WARMUP == 0:
-                if 2 * it > W and late_warmup is None:  # counted from the second half of warm-up
-                    late_warmup = (progress.relocated, progress.relocation_slots)
-                state = _relocate(rng, model, target, state, progress, binned)
+                if 2 * it > W and late is None:  # counted from the second half of warm-up
+                    late = (progress.relocated, progress.relocation_slots)
+                state = _relocate(ctx, state)
             eps = da.update(info.accept_prob)
             chees.update(x_old, _whiten(chol, info.proposal), info.end_momentum, info.accept_prob, u)
             chees.max_log_T = math.log(MAX_LEAPFROG * eps)
@@ -201,19 +256,21 @@ def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time
             progress.record(info, n_steps)
             win_lp.append(state.log_density)
             win_grad.append(state.grad)
-            if it % settings.snapshot_every == 0 or (
-                settings.snapshot_seconds and clock() - last_yield > settings.snapshot_seconds
+            if it % ctx.settings.snapshot_every == 0 or (
+                ctx.settings.snapshot_seconds and ctx.clock() - last_yield > ctx.settings.snapshot_seconds
             ):
                 yield progress.snapshot("warmup", it, W, positions=state.position, eps=eps, T=chees.length)
-                last_yield = clock()
-            if should_stop():
-                stopped = True
+                last_yield = ctx.clock()
+            if ctx.should_stop():
+                ended_by = "stop request"
+            elif ctx.over_budget():
+                ended_by = "time budget"
+            if ended_by:
                 break
-        if stopped:
+        if ended_by:
             break
         if kind == "slow":
-            lp_win = np.array(win_lp)  # (k, C)
-            stuck = _stuck_chains(lp_win)
+            stuck = _stuck_chains(np.array(win_lp))
             if np.any(stuck):
                 donors = rng.choice(np.flatnonzero(~stuck), size=int(stuck.sum()))
                 pos = state.position.copy()
@@ -223,31 +280,37 @@ def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time
             chol = fisher_chol(np.array(win_grad)[:, ~stuck].reshape(-1, model.dim))
             da = DualAveraging(eps, target=TARGET_ACCEPT)
     eps = da.final() if da.count else eps
-    T = chees.final()
-    timings["warmup_seconds"] = clock() - t0 - timings["init_seconds"]
-
-    # -- drop chains still stuck after warm-up
-    keep = np.ones(C, dtype=bool)
-    if not stopped and W > 0:
-        tail = np.array(win_lp) if win_lp else state.log_density[None, :]
-        keep = ~_stuck_chains(tail)
+    ctx.timings["warmup_seconds"] = ctx.clock() - ctx.t0 - ctx.timings["init_seconds"]
+    # chains still stuck after warm-up leave the run
+    keep = np.ones(state.position.shape[0], dtype=bool)
+    if not ended_by and W > 0:
+        keep = ~_stuck_chains(np.array(win_lp) if win_lp else state.log_density[None, :])
     dropped = [int(i) for i in np.flatnonzero(~keep)]
     if dropped:
         state = init_state(target, state.position[keep])
     progress.set_chains(int(keep.sum()), dropped, restarted)
-    names = model.param_names
-    sink.reset(int(keep.sum()), names)
-
-    # -- sampling
-    status = "stopped" if stopped else None
-    sweeps = 0  # sampling iterations, for the relocation schedule
-    far_moves, moves = late_warmup or (0, 0)
+    far_moves, moves = late or (0, 0)
     far_moves, moves = progress.relocated - far_moves, progress.relocation_slots - moves
     far = far_moves / moves if moves else 0.0
     every = RELOCATE_MULTIMODAL if far >= FAR_MOVES_MULTIMODAL else RELOCATE_UNIMODAL
+    return state, Tuning(eps, chees.final(), chol, every), ended_by
+
+
+def sample(ctx, state, tuning, ended_by):
+    """Draw until the criterion holds and the requested draws are in; a generator of snapshots.
+
+    Convergence is checked at iterations fixed by the draws alone, so the
+    draws never depend on timing; only a stop request or the time budget
+    (checked every iteration) can end a run at a time-dependent point.
+    """
+    model, rng, target, progress, settings = ctx.model, ctx.rng, ctx.target, ctx.progress, ctx.settings
+    eps, T, chol = tuning.step_size, tuning.trajectory_length, tuning.chol
+    W = ctx.warmup
+    ctx.sink.reset(state.position.shape[0], model.param_names)
+    status = None if ended_by is None else ("stopped" if ended_by == "stop request" else "unconverged")
     block_pos, block_lp = [], []
-    n_draws = 0
-    t_sample = clock()
+    n_draws, sweeps = 0, 0
+    t_sample = last_yield = ctx.clock()
     max_draws = settings.max_draws or max(20 * settings.draws, 4000)
     next_check = settings.snapshot_every
     diag = traces = None
@@ -255,75 +318,79 @@ def run(series, model_spec, settings, *, sink=None, should_stop=None, clock=time
 
     def flush():
         if block_pos:
-            sink.append(np.stack(block_pos, axis=1), np.stack(block_lp, axis=1))
+            ctx.sink.append(np.stack(block_pos, axis=1), np.stack(block_lp, axis=1))
             block_pos.clear()
             block_lp.clear()
 
     while status is None:
-        stop_now = False
         for _ in range(settings.thin):  # keep every thin-th iteration
             u = 1.0 - rng.random()
             n_steps = int(min(MAX_LEAPFROG, max(1, math.ceil(u * T / eps))))
             state, info = step(rng, state, target, Params(eps, n_steps, chol))
             progress.record(info, n_steps, sampling=True)
             sweeps += 1
-            if model.K > 1 and sweeps % every == 0:
-                state = _relocate(rng, model, target, state, progress, binned)
-            if should_stop():
-                stop_now = True
+            if model.K > 1 and sweeps % tuning.relocate_every == 0:
+                state = _relocate(ctx, state)
+            if ctx.should_stop():
+                ended_by = "stop request"
+            elif ctx.over_budget():
+                ended_by = "time budget"
+            if ended_by:
                 break
         block_pos.append(state.position)
         block_lp.append(state.log_density)
         n_draws += 1
-        if stop_now:
-            status = "stopped"
+        if ended_by:
+            status = "stopped" if ended_by == "stop request" else "unconverged"
         elif n_draws >= max_draws:
-            status = "unconverged"
+            status, ended_by = "unconverged", "draw limit"
         elif n_draws >= next_check:
-            # Convergence is checked at iterations fixed by the draws alone,
-            # so the draws never depend on timing.
             flush()
-            diag, traces = progress.check(sink.read()[0])
+            diag, traces = progress.check(ctx.sink.read()[0])
             diag_at = n_draws
             if diag["converged"] and n_draws >= settings.draws:
-                status = "converged"
-            elif clock() - t0 > settings.max_seconds:
-                status = "unconverged"
+                status, ended_by = "converged", "criterion"
             else:
                 next_check = n_draws + _next_check_gap(n_draws, diag, settings)
         if status is None and (
             (not settings.snapshot_seconds and diag_at == n_draws)
-            or (settings.snapshot_seconds and clock() - last_yield > settings.snapshot_seconds)
+            or (settings.snapshot_seconds and ctx.clock() - last_yield > settings.snapshot_seconds)
         ):
             flush()
             yield progress.snapshot(
-                "sampling", W + n_draws, W, positions=sink.read()[0], eps=eps, T=T,
+                "sampling", W + n_draws, W, positions=ctx.sink.read()[0], eps=eps, T=T,
                 diagnostics=diag, traces=traces, diagnostics_at=diag_at,
             )
-            last_yield = clock()
+            last_yield = ctx.clock()
     flush()
-    timings["sampling_seconds"] = clock() - t_sample
-    timings["total_seconds"] = clock() - t0
-    positions, _ = sink.read()
-    if positions.size and diag_at != n_draws and positions.shape[1] >= 4:
-        diag, traces = progress.check(positions)
+    ctx.timings["sampling_seconds"] = ctx.clock() - t_sample
+    yield _final(ctx, status, ended_by, n_draws, diag, traces, diag_at, eps, T)
+
+
+def _final(ctx, status, ended_by, n_draws, diag, traces=None, diag_at=-1, eps=None, T=None):
+    """The last snapshot: status, why the run ended, diagnostics on every draw, timings."""
+    positions, _ = ctx.sink.read() if n_draws else (np.empty((0, 0, 0)), None)
+    if n_draws and diag_at != n_draws and positions.shape[1] >= 4:
+        diag, traces = ctx.progress.check(positions)
         diag_at = n_draws
-    final = progress.snapshot(
-        "done", W + n_draws, W, positions=positions if positions.size else None, eps=eps, T=T,
+    ctx.timings["total_seconds"] = ctx.clock() - ctx.t0
+    final = ctx.progress.snapshot(
+        "done", ctx.warmup + n_draws, ctx.warmup, positions=positions if n_draws else None, eps=eps, T=T,
         diagnostics=diag, traces=traces, diagnostics_at=diag_at,
     )
-    if status == "unconverged" and diag and diag["converged"] and n_draws >= settings.draws:
+    if status == "unconverged" and diag and diag["converged"] and n_draws >= ctx.settings.draws:
         status = "converged"
     final["status"] = status
-    final["timings"] = {k: round(v, 4) for k, v in timings.items()}
-    yield final
+    final["ended_by"] = ended_by
+    final["timings"] = {k: round(v, 4) for k, v in ctx.timings.items()}
+    return final
 
 
-def _relocate(rng, model, target, state, progress, binned):
+def _relocate(ctx, state):
     """A change-date relocation for all chains; the state's gradient is refreshed."""
-    theta, lp, info = relocate_move(rng, model, state.position, state.log_density, binned=binned)
-    progress.record_relocation(info)
-    return State(theta, lp, target.grad(theta))
+    theta, lp, info = relocate_move(ctx.rng, ctx.model, state.position, state.log_density, binned=ctx.binned)
+    ctx.progress.record_relocation(info)
+    return State(theta, lp, ctx.target.grad(theta))
 
 
 def _next_check_gap(n_draws, diag, settings):
@@ -389,24 +456,3 @@ def _initial_step_size(rng, state, target, chol):
         if eps < 1e-6:
             break
     return eps
-
-
-def fit(series, model_spec, settings, *, sink=None, should_stop=None, on_snapshot=None):
-    """Drain :func:`run`; return the final snapshot and the sink.
-
-    Parameters
-    ----------
-    on_snapshot : callable, optional
-        Called with each snapshot as it comes.
-
-    Returns
-    -------
-    (final_snapshot, sink)
-    """
-    sink = MemorySink() if sink is None else sink
-    final = None
-    for snap in run(series, model_spec, settings, sink=sink, should_stop=should_stop):
-        if on_snapshot is not None:
-            on_snapshot(snap)
-        final = snap
-    return final, sink

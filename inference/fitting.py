@@ -8,6 +8,8 @@ draws with a result-specific random stream.
 
 from __future__ import annotations
 
+import time
+
 import numpy as np
 
 from .driver import run
@@ -48,7 +50,7 @@ def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None
     model = TrendModel(series, model_spec)  # validates against the series first
     sink = MemorySink() if sink is None else sink
     final = None
-    for snap in run(series, model_spec, settings, sink=sink, should_stop=should_stop):
+    for snap in run(model, settings, sink=sink, should_stop=should_stop):
         final = snap
         if on_snapshot is not None:
             on_snapshot(snap)
@@ -56,6 +58,7 @@ def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None
     if positions.size == 0:
         return None, final
     rng = np.random.default_rng(np.random.SeedSequence(settings.seed).spawn(4)[3])
+    t_result = time.monotonic()
     result = build_result(
         model, settings, final, positions, rng, options=given if given is not None else options,
         segment_support=segment_support,
@@ -70,4 +73,8 @@ def fit_result(series, options, *, sink=None, on_snapshot=None, should_stop=None
         k: diag[k] for k in ("converged", "reportable", "warnings", "rhat_max", "ess_bulk_min", "ess_tail_min")})
     final["summary_text"] = result["summary_text"]
     result["status"] = final["status"]
+    result["ended_by"] = final.get("ended_by")
+    timings = dict(result["diagnostics"].get("timings") or {})
+    timings["result_seconds"] = round(time.monotonic() - t_result, 4)  # bands, projection, checks
+    result["diagnostics"]["timings"] = timings
     return result, final

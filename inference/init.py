@@ -16,6 +16,8 @@ placements:
 
 from __future__ import annotations
 
+import time
+
 import numpy as np
 
 from .conditional import design, linear_index
@@ -106,7 +108,7 @@ def least_squares_starts(model, knots, chunk=32):
     return theta
 
 
-def adam_polish(model, theta, iterations=150, lr=0.05):
+def adam_polish(model, theta, iterations=150, lr=0.05, deadline=None, clock=time.monotonic):
     """Maximise the log density of every row together with Adam.
 
     Kingma & Ba (2015), "Adam: a method for stochastic optimization"; the
@@ -122,6 +124,8 @@ def adam_polish(model, theta, iterations=150, lr=0.05):
     v = np.zeros_like(theta)
     b1, b2 = 0.9, 0.999
     for i in range(1, iterations + 1):
+        if deadline is not None and i % 10 == 0 and clock() > deadline:
+            break  # the fit's time budget: the best so far will do
         g = model.grad(theta)
         m = b1 * m + (1 - b1) * g
         v = b2 * v + (1 - b2) * g * g
@@ -155,7 +159,7 @@ def laplace_chol(model, theta, ridge=1e-6):
     return safe_cholesky(cov)
 
 
-def find_starts(model, rng, n_random=256, n_polish=32, iterations=150):
+def find_starts(model, rng, n_random=256, n_polish=32, iterations=150, deadline=None, clock=time.monotonic):
     """Multi-start mode search.
 
     Parameters
@@ -168,6 +172,9 @@ def find_starts(model, rng, n_random=256, n_polish=32, iterations=150):
         Best of those polished by Adam.
     iterations : int
         Adam iterations.
+    deadline : float, optional
+        Clock time by which the search stops polishing (the fit's time budget).
+    clock : callable
 
     Returns
     -------
@@ -181,7 +188,7 @@ def find_starts(model, rng, n_random=256, n_polish=32, iterations=150):
     theta = least_squares_starts(model, knots)
     lp = model.log_density(theta)
     order = np.argsort(-np.where(np.isfinite(lp), lp, -np.inf))[:n_polish]
-    theta, lp = adam_polish(model, theta[order], iterations=iterations)
+    theta, lp = adam_polish(model, theta[order], iterations=iterations, deadline=deadline, clock=clock)
     lp = np.where(np.isfinite(lp), lp, -np.inf)
     order = np.argsort(-lp)
     theta, lp = theta[order], lp[order]

@@ -59,6 +59,20 @@ class RunStore:
         """Merge ``fields`` into the record; returns the new record (None if absent)."""
         raise NotImplementedError
 
+    def update_run_if(self, run_id, expect, **fields):
+        """Merge ``fields`` only while the record's fields equal ``expect``, in one step.
+
+        Returns the new record, or None when the run is absent or has moved
+        on (another writer changed one of the expected fields). A worker
+        writes a run's final state this way, so a run the server already
+        marked failed, or one being deleted, is never overwritten.
+        """
+        raise NotImplementedError
+
+    def lock(self, name, seconds=10.0):
+        """A context manager holding a short, store-wide lock (for check-then-act steps)."""
+        raise NotImplementedError
+
     def list_runs(self, limit=200):
         """Run records, newest first."""
         raise NotImplementedError

@@ -56,6 +56,20 @@ class DiskRunStore(RunStore):
             self._cache.set(self._k(run_id, "meta"), rec)
         return rec
 
+    def update_run_if(self, run_id, expect, **fields):
+        with self._cache.transact():
+            rec = self._cache.get(self._k(run_id, "meta"))
+            if rec is None or any(rec.get(k) != v for k, v in expect.items()):
+                return None
+            rec = dict(rec, **fields)
+            self._cache.set(self._k(run_id, "meta"), rec)
+        return rec
+
+    def lock(self, name, seconds=10.0):
+        import diskcache
+
+        return diskcache.Lock(self._cache, f"lock:{name}", expire=seconds)
+
     def list_runs(self, limit=200):
         out = []
         for run_id in self._cache.get("runs:index", [])[:limit]:

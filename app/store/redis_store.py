@@ -66,6 +66,20 @@ if #ARGV > 0 then redis.call('HSET', KEYS[1], unpack(ARGV)) end
 return redis.call('HGETALL', KEYS[1])
 """
 
+# Merge fields only while the record holds the expected values (ARGV[1] = how
+# many expected pairs follow, then those pairs, then the fields to set).
+_UPDATE_IF_LUA = """
+if redis.call('EXISTS', KEYS[1]) == 0 then return false end
+local n = tonumber(ARGV[1])
+for i = 0, n - 1 do
+  if redis.call('HGET', KEYS[1], ARGV[2 + 2 * i]) ~= ARGV[3 + 2 * i] then return false end
+end
+local set = {}
+for i = 2 + 2 * n, #ARGV do table.insert(set, ARGV[i]) end
+if #set > 0 then redis.call('HSET', KEYS[1], unpack(set)) end
+return redis.call('HGETALL', KEYS[1])
+"""
+
 # Live worker records; names whose record expired leave the set (atomically,
 # so a worker registering meanwhile is never dropped).
 _WORKERS_LUA = """
@@ -279,6 +293,7 @@ class RedisRunStore(RunStore):
         self.socket_timeout = socket_timeout
         self._r = connect(client_url, socket_timeout=socket_timeout)
         self._update = self._r.register_script(_UPDATE_LUA)
+        self._update_if = self._r.register_script(_UPDATE_IF_LUA)
         self._workers = self._r.register_script(_WORKERS_LUA)
 
     def __repr__(self):
@@ -317,6 +332,19 @@ class RedisRunStore(RunStore):
             args += [k, dumps(v)]
         raw = self._update(keys=[self._k(run_id, "meta")], args=args)
         return _pairs(raw) if raw else None
+
+    @guarded
+    def update_run_if(self, run_id, expect, **fields):
+        args = [str(len(expect))]
+        for k, v in expect.items():
+            args += [k, dumps(v)]
+        for k, v in fields.items():
+            args += [k, dumps(v)]
+        raw = self._update_if(keys=[self._k(run_id, "meta")], args=args)
+        return _pairs(raw) if raw else None
+
+    def lock(self, name, seconds=10.0):
+        return self._r.lock(f"{self.prefix}lock:{name}", timeout=seconds, blocking_timeout=seconds)
 
     @guarded
     def list_runs(self, limit=200):

@@ -51,4 +51,4 @@ def _maintain(runs, stop):
         try:
             runs.maintain()
         except ConnectionError:
-            pass  # Redis away: the page says so; try again later
+            runs.store_unreachable()  # Redis away: the workers get a heartbeat period after it returns

@@ -54,6 +54,8 @@ def make_app(tmp_path):
 
         register_api(server)
         client = server.test_client()
+        # what the dashboard's and scripts' cookie-signed API writes send (app.web.security)
+        client.environ_base["HTTP_X_BENDLINE_REQUEST"] = "1"
         client.signed_in = signed_in
         client.services = services
         return client
@@ -151,7 +153,7 @@ def test_multipart_region_in_the_spec_and_a_change_date(make_app):
     assert result["series"]["start"] == "2026-03-02"
 
 
-def test_delete_stops_a_queued_run_and_keeps_the_owner_rules(make_app):
+def test_stop_and_delete_keep_the_owner_rules(make_app):
     class Holding:
         def submit(self, run_id):
             pass  # the run stays queued
@@ -164,19 +166,22 @@ def test_delete_stops_a_queued_run_and_keeps_the_owner_rules(make_app):
     assert queued["owner"] == "ana" and queued["progress"] is None and queued["result"] is None
 
     client.signed_in["user"] = {"name": "bo", "admin": False}
-    refused = client.delete(url)
-    error = _assert_clean_error(refused, 403)
-    assert "owner" in error["message"]
+    for refused in (client.post(url + "/stop"), client.delete(url)):
+        assert "owner" in _assert_clean_error(refused, 403)["message"]
     assert client.get(url).get_json()["status"] == "queued"
 
     client.signed_in["user"] = {"name": "ana", "admin": False}
-    stopped = client.delete(url)
+    stopped = client.post(url + "/stop")
     assert stopped.status_code == 202
     assert stopped.get_json()["status"] == "stopped" and stopped.get_json()["id"] == r.get_json()["id"]
     assert client.get(url).get_json()["status"] == "stopped"
+    deleted = client.delete(url)
+    assert deleted.status_code == 200 and deleted.get_json() == {"id": r.get_json()["id"], "deleted": True}
+    assert client.get(url).status_code == 404
+    assert client.services.store.get_series(r.get_json()["id"]) is None  # its data went too
 
 
-def test_an_admin_may_stop_another_users_run(make_app):
+def test_an_admin_may_stop_and_delete_another_users_run(make_app):
     class Holding:
         def submit(self, run_id):
             pass
@@ -184,7 +189,26 @@ def test_an_admin_may_stop_another_users_run(make_app):
     client = make_app(user={"name": "ana", "admin": False}, executor=Holding())
     url = _post_json(client, _text(DAILY), FAST).get_json()["url"]
     client.signed_in["user"] = {"name": "chief", "admin": True}
-    assert client.delete(url).status_code == 202
+    assert client.post(url + "/stop").status_code == 202
+    assert client.delete(url).status_code == 200
+
+
+def test_a_running_run_is_deleted_by_its_worker_when_it_stops(make_app):
+    from bendline.app.execute import _finish
+
+    class Holding:
+        def submit(self, run_id):
+            pass
+
+    client = make_app(user={"name": "ana", "admin": False}, executor=Holding())
+    rid = _post_json(client, _text(DAILY), FAST).get_json()["id"]
+    store = client.services.store
+    store.update_run(rid, status="running", worker="host:1")  # as a worker would have
+    r = client.delete(f"/api/v1/runs/{rid}")
+    assert r.status_code == 202 and r.get_json()["status"] == "deleting"
+    assert store.stop_requested(rid)
+    assert _finish(store, rid, "host:1", {"status": "stopped"}) is False  # the worker removes it
+    assert store.get_run(rid) is None and client.get(f"/api/v1/runs/{rid}").status_code == 404
 
 
 # --------------------------------------------------------------------------

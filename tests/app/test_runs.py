@@ -171,3 +171,52 @@ def test_a_segment_comparison_fits_each_count_and_recommends_one(tmp_path, serie
     assert sum(s["weight"] for s in support) == pytest.approx(1.0, abs=1e-3)
     again, support2 = cmp.state(rec["id"])  # stored: the same answer without recomputing
     assert support2 == support
+
+
+@pytest.mark.parametrize("backend", ["disk", "redis"])
+def test_the_in_flight_limit_holds_under_simultaneous_submissions(tmp_path, series, backend, request):
+    import threading
+
+    if backend == "disk":
+        store = DiskRunStore(str(tmp_path))
+    else:
+        from bendline.app.store.redis_store import RedisRunStore
+
+        store = RedisRunStore(request.getfixturevalue("redis_url"))
+
+    class Holding:
+        def submit(self, run_id):
+            pass  # queued runs stay in flight
+
+    svc = RunService(store, Holding(), max_in_flight=2)
+    barrier = threading.Barrier(12)
+
+    def submit():
+        barrier.wait()
+        svc.submit(series, FAST, owner="ana")
+
+    threads = [threading.Thread(target=submit) for _ in range(12)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(60)
+    runs = [r for r in store.list_runs(100) if r.get("owner") == "ana"]
+    assert len(runs) == 12
+    assert sum(not r.get("held") for r in runs) == 2  # two run, ten wait their turn
+
+
+def test_a_worker_never_overwrites_a_run_the_server_already_failed(tmp_path, series):
+    from bendline.app.execute import _finish
+
+    store = DiskRunStore(str(tmp_path))
+
+    class Holding:
+        def submit(self, run_id):
+            pass
+
+    svc = RunService(store, Holding())
+    rid = svc.submit(series, FAST, owner="ana")["id"]
+    store.update_run(rid, status="running", worker="old-host:1")
+    store.update_run(rid, status="failed", reason="the server stopped before this run finished; resubmit it")
+    assert _finish(store, rid, "old-host:1", {"status": "converged"}, {"phase": "done"}, {"x": 1}) is False
+    assert store.get_run(rid)["status"] == "failed" and store.get_result(rid) is None

@@ -7,6 +7,8 @@ contract.
 
 from __future__ import annotations
 
+import time
+
 import json
 import threading
 
@@ -117,6 +119,39 @@ def test_claims_go_to_the_first_caller_only(store):
     store.delete_run(rid)
     store.create_run(_record(rid), {})
     assert store.claim(rid, "execute") is True  # a deleted run's claims go with it
+
+
+def test_conditional_updates_write_only_while_the_record_is_as_expected(store):
+    store.create_run(_record("c" * 16), {"values": [1.0]})
+    store.update_run("c" * 16, status="running", worker="w1")
+    assert store.update_run_if("c" * 16, {"status": "running", "worker": "w2"}, status="converged") is None
+    store.update_run("c" * 16, status="failed", reason="the server restarted")  # someone else decided
+    assert store.update_run_if("c" * 16, {"status": "running", "worker": "w1"}, status="converged") is None
+    assert store.get_run("c" * 16)["status"] == "failed"
+    store.update_run("c" * 16, status="running")
+    rec = store.update_run_if("c" * 16, {"status": "running", "worker": "w1"}, status="converged", seconds=1.5)
+    assert rec["status"] == "converged" and rec["seconds"] == 1.5 and rec["worker"] == "w1"
+    assert store.update_run_if("d" * 16, {"status": "running"}, status="x") is None  # no such run
+
+
+def test_a_lock_is_held_by_one_caller_at_a_time(store):
+    import threading
+
+    inside, most = [0], [0]
+
+    def work():
+        with store.lock("inflight:ana", seconds=10):
+            inside[0] += 1
+            most[0] = max(most[0], inside[0])
+            time.sleep(0.02)
+            inside[0] -= 1
+
+    threads = [threading.Thread(target=work) for _ in range(6)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(30)
+    assert most[0] == 1
 
 
 def test_uploads_and_ping(store):

@@ -76,7 +76,7 @@ def test_rank_statistics_are_uniform():
         series = Series.from_counts("2026-01-05", y)
         settings = RunSettings(chains=4, draws=150, max_draws=150, warmup=150, seed=1000 + i, snapshot_every=50)
         sink = MemorySink()
-        for _ in run(series, spec, settings, sink=sink):
+        for _ in run(TrendModel(series, spec), settings, sink=sink):
             pass
         pos, _ = sink.read()
         model = TrendModel(series, spec)
@@ -153,7 +153,7 @@ def test_rank_statistics_are_uniform_with_close_change_dates_near_an_end():
         series = Series.from_counts("2026-01-05", y)
         settings = RunSettings(chains=4, draws=150, max_draws=150, warmup=150, seed=3000 + i, snapshot_every=50)
         sink = MemorySink()
-        for _ in run(series, spec, settings, sink=sink):
+        for _ in run(TrendModel(series, spec), settings, sink=sink):
             pass
         pos, _ = sink.read()
         model = TrendModel(series, spec)

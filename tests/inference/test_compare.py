@@ -89,7 +89,7 @@ def test_loo_of_a_real_fit_matches_arviz():
                          knot_days=[40.0], growth_rate_per_day=[0.03, -0.03])
     spec = ModelSpec(segments=2, family="poisson", weekday=False)
     sink = MemorySink()
-    for final in run(series, spec, RunSettings(chains=4, draws=300, max_draws=300, seed=2), sink=sink):
+    for final in run(TrendModel(series, spec), RunSettings(chains=4, draws=300, max_draws=300, seed=2), sink=sink):
         pass
     pos, _ = sink.read()
     model = TrendModel(series, spec)

@@ -9,6 +9,7 @@ import numpy as np
 
 from bendline.inference import SCHEMA_VERSION
 from bendline.inference.driver import _stuck_chains, run
+from bendline.inference.model import TrendModel
 from bendline.inference.sinks import MemorySink
 from bendline.inference.spec import ModelSpec, RunSettings
 
@@ -17,7 +18,7 @@ SPEC = ModelSpec(segments=3, family="negbin")
 
 def _drain(series, settings, **kw):
     sink = MemorySink()
-    snaps = list(run(series, SPEC, settings, sink=sink, **kw))
+    snaps = list(run(TrendModel(series, SPEC), settings, sink=sink, **kw))
     return snaps, sink
 
 
@@ -87,12 +88,23 @@ def test_stop_during_warmup_ends_with_no_draws(small_series):
 
 def test_time_budget_ends_an_unconverged_run(small_series):
     ticks = itertools.count()
-    clock = lambda: next(ticks) * 0.05  # every call costs a fake 50 ms
+    clock = lambda: next(ticks) * 0.01  # every call costs a fake 10 ms
     settings = RunSettings(chains=4, draws=100000, seed=3, snapshot_every=10, warmup=40, max_seconds=3.0)
     snaps, sink = _drain(small_series, settings, clock=clock)
-    assert snaps[-1]["status"] == "unconverged"
+    assert snaps[-1]["status"] == "unconverged" and snaps[-1]["ended_by"] == "time budget"
     assert snaps[-1]["diagnostics"]["converged"] in (True, False)
     assert sink.draws > 0
+
+
+def test_the_time_budget_counts_the_start_search_and_warm_up(small_series):
+    # a wall budget: a fit whose start search alone uses it up ends there, with no draws
+    ticks = itertools.count()
+    clock = lambda: float(next(ticks))  # every call costs a fake second
+    settings = RunSettings(chains=4, draws=100, seed=3, warmup=40, max_seconds=1.0)
+    snaps, sink = _drain(small_series, settings, clock=clock)
+    final = snaps[-1]
+    assert final["status"] == "unconverged" and final["ended_by"] == "time budget"
+    assert sink.draws == 0 and "init_seconds" in final["timings"] and "warmup_seconds" not in final["timings"]
 
 
 def test_stuck_chains_are_found_and_a_majority_never_dropped():

@@ -128,7 +128,7 @@ def test_sampler_matches_the_integrated_posterior():
     settings = RunSettings(chains=8, draws=1500, seed=77, snapshot_every=100)
     sink = MemorySink()
     final = None
-    for final in run(series, spec, settings, sink=sink):
+    for final in run(TrendModel(series, spec), settings, sink=sink):
         pass
     assert final["status"] == "converged"
     model = TrendModel(series, spec)

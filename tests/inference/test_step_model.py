@@ -38,6 +38,7 @@ from scipy.special import logsumexp
 
 from bendline.inference import diagnostics
 from bendline.inference.driver import run
+from bendline.inference.model import TrendModel
 from bendline.inference.reader import read_series
 from bendline.inference.sinks import MemorySink
 from bendline.inference.spec import ModelSpec, RunSettings
@@ -91,11 +92,9 @@ def test_change_year_matches_enumeration_on_coal_disasters():
     series = coal_series(y)
     spec = ModelSpec(segments=2, family="poisson", flat_segments=True, weekday=False)
     sink = MemorySink()
-    for snap in run(series, spec, RunSettings(seed=5, draws=1000), sink=sink):
+    for snap in run(TrendModel(series, spec), RunSettings(seed=5, draws=1000), sink=sink):
         pass
     assert snap["status"] == "converged"
-    from bendline.inference.model import TrendModel
-
     model = TrendModel(series, spec)
     pos = sink.read()[0]
     tau = model.constrain(pos.reshape(-1, model.dim))["knots"][:, 0].reshape(pos.shape[0], -1)  # (chains, draws)

@@ -110,7 +110,7 @@ def test_a_killed_worker_leaves_a_failed_run_and_others_carry_on(api, workers, r
     assert "heartbeat" in failed["reason"] and time.time() - t_kill <= 60
     code, other = api.call("GET", f"/api/v1/runs/{survivor}")
     assert other["status"] == "running"  # the other run is still sampling, untouched
-    api.call("DELETE", f"/api/v1/runs/{survivor}")
+    api.call("POST", f"/api/v1/runs/{survivor}/stop")
     api.wait(survivor, ("stopped",), timeout=30)
     # the failed run is resubmitted and finishes on the remaining worker
     again = api.submit_file(SAMPLE, FAST)
@@ -129,7 +129,7 @@ def test_a_stopped_run_frees_its_worker_promptly(api, workers):
     workers("w1")
     long_run = api.submit_file(SAMPLE, LONG)
     api.wait(long_run["id"], ("running",), timeout=90)
-    code, rec = api.call("DELETE", f"/api/v1/runs/{long_run['id']}")
+    code, rec = api.call("POST", f"/api/v1/runs/{long_run['id']}/stop")
     assert code == 202
     api.wait(long_run["id"], ("stopped",), timeout=20)
     nxt = api.submit_file(SAMPLE, FAST)
@@ -197,7 +197,7 @@ def test_a_run_from_another_engine_version_is_refused_with_the_reason(redis_url,
     workers("w1")
     run = api.submit_file(SAMPLE, LONG)
     api.wait(run["id"], ("running",), timeout=90)
-    api.call("DELETE", f"/api/v1/runs/{run['id']}")
+    api.call("POST", f"/api/v1/runs/{run['id']}/stop")
     # a record written by a server on other code: the worker says so and does not fit it
     store = RedisRunStore(redis_url)
     rec = dict(store.get_run(run["id"]), id="f" * 16, status="queued", code_version="0.0.0-elsewhere")
