@@ -36,8 +36,12 @@ def default_data_dir():
     return os.path.join(platformdirs.user_data_dir("bendline", appauthor=False), "runs")
 
 
-def build_local_app(data_dir, *, workers=2, demo=False, warm=True):
-    """The local-mode Dash app with its store, worker pool and run service."""
+def build_local_app(data_dir, *, workers=2, demo=False, warm=True, host="127.0.0.1"):
+    """The local-mode Dash app with its store, worker pool and run service.
+
+    It answers requests addressed to ``host`` and the loopback names only,
+    unless it listens on every address (``0.0.0.0`` or ``::``).
+    """
     from ..executors import LocalExecutor
     from ..runs import RunService
     from ..store.disk import DiskRunStore
@@ -50,7 +54,10 @@ def build_local_app(data_dir, *, workers=2, demo=False, warm=True):
     runs.fail_orphans()
     if warm:
         executor.warm_up()
-    services = AppServices(runs=runs, store=store)
+    from ..web.security import LOOPBACK
+
+    allowed = None if host in ("0.0.0.0", "::", "") else frozenset(LOOPBACK | {host.lower()})
+    services = AppServices(runs=runs, store=store, allowed_hosts=allowed)
     app = create_app(services, demo_sample=DEFAULT_SAMPLE if demo else None)
     from ..api import register_api
 
@@ -65,7 +72,7 @@ def run_serve(args):
         return run_team_server(args)
     data_dir = args.data_dir or default_data_dir()
     try:
-        app, executor = build_local_app(data_dir, workers=args.workers, demo=args.demo)
+        app, executor = build_local_app(data_dir, workers=args.workers, demo=args.demo, host=args.host)
     except OSError as exc:
         sys.stderr.write(f"bendline serve: cannot use the data folder {data_dir}: {exc}\n")
         return EXIT_INPUT

@@ -16,6 +16,8 @@ import datetime as _dt
 import html
 import secrets
 
+from urllib.parse import urlsplit
+
 from flask import g, jsonify, redirect, request, session
 
 PUBLIC_PREFIXES = ("/assets/", "/_dash-component-suites/")
@@ -23,10 +25,22 @@ PUBLIC_PATHS = frozenset({"/login", "/_favicon.ico", "/favicon.ico"})
 
 
 def _safe_next(target):
-    """Only same-site paths are followed after sign-in."""
-    if not target or not target.startswith("/") or target.startswith("//") or "\\" in target:
+    """Only same-site paths are followed after sign-in.
+
+    The path is normalised as a browser would read it first (browsers drop
+    tabs and line breaks from URLs, so ``/\t/evil.example`` is
+    ``//evil.example``): it must then start with a single ``/``, hold no
+    backslash, and name no scheme or host.
+    """
+    if not isinstance(target, str):
         return "/"
-    return target
+    cleaned = "".join(ch for ch in target if ch >= " " and ch != "\x7f").strip()
+    if not cleaned.startswith("/") or cleaned.startswith("//") or "\\" in cleaned:
+        return "/"
+    parts = urlsplit(cleaned)
+    if parts.scheme or parts.netloc:
+        return "/"
+    return cleaned
 
 
 def login_page(message="", next_path="/", name=""):
@@ -38,7 +52,7 @@ def login_page(message="", next_path="/", name=""):
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8"><title>Sign in · Bendline</title>
 <meta name="viewport" content="width=device-width, initial-scale=1">
-<link rel="stylesheet" href="/assets/bendline.css"></head>
+<link rel="icon" href="/_favicon.ico"><link rel="stylesheet" href="/assets/bendline.css"></head>
 <body><div class="login-page">
 <form method="post" action="/login" class="login-box">
 <div class="logo">Bendline</div>
@@ -86,8 +100,9 @@ def install(flask_app, users, *, cookie_secure=True, session_hours=12):
             user = users.user_for_token(header[7:].strip())
         elif session.get("user"):
             user = users.get(session["user"])
-            if user is None:
-                session.clear()  # the account was removed
+            if user is None or not users.session_valid(session["user"], session.get("sid")):
+                user = None
+                session.clear()  # signed out elsewhere, or the account was removed
         if user is not None:
             g.bendline_user = {"name": user["name"], "admin": bool(user.get("admin"))}
             return None
@@ -118,10 +133,13 @@ def install(flask_app, users, *, cookie_secure=True, session_hours=12):
         session.clear()
         session.permanent = True
         session["user"] = user["name"]
+        session["sid"] = users.start_session(user["name"], session_hours)
         return redirect(next_path)
 
     @flask_app.route("/logout")
     def logout():
+        if session.get("user"):
+            users.end_session(session["user"], session.get("sid"))  # the cookie stops working everywhere
         session.clear()
         return redirect("/login")
 

@@ -207,6 +207,7 @@ class UserStore:
         revoked = self.revoke_tokens(name)
         pipe = self._r.pipeline(transaction=True)
         pipe.delete(self._user(name))
+        pipe.delete(self._sessions_of(name))  # every signed-in browser of this user is signed out
         pipe.srem(f"{self.prefix}users", name)
         pipe.execute()
         return revoked
@@ -292,9 +293,14 @@ class UserStore:
 
     # -- throttling
     def _throttle_keys(self, name, ip):
+        """Failures are counted per name *from one address* and per address.
+
+        Never per name alone: then five wrong passwords from anywhere would
+        lock the owner out too, a lockout any stranger could trigger.
+        """
         keys = []
-        if name:
-            keys.append(f"{self.prefix}throttle:name:{_hash_key(name)}")
+        if name and ip:
+            keys.append(f"{self.prefix}throttle:name-ip:{_hash_key(name + chr(0) + ip)}")
         if ip:
             keys.append(f"{self.prefix}throttle:ip:{_hash_key(ip)}")
         return keys
@@ -341,6 +347,32 @@ class UserStore:
             self._r.delete(*keys)
 
     # -- sessions
+    def _sessions_of(self, name):
+        return f"{self.prefix}sessions:{name}"
+
+    @guarded
+    def start_session(self, name, hours):
+        """A new server-side session id for ``name``, valid for ``hours`` unless ended."""
+        sid = secrets.token_urlsafe(24)
+        key = self._sessions_of(name)
+        pipe = self._r.pipeline(transaction=True)
+        pipe.sadd(key, sid)
+        pipe.expire(key, int(hours * 3600) + 60)
+        pipe.execute()
+        return sid
+
+    @guarded
+    def session_valid(self, name, sid):
+        """True while the session has not been ended (sign-out, user removed)."""
+        if not isinstance(name, str) or not NAME.match(name) or not isinstance(sid, str) or not sid:
+            return False
+        return bool(self._r.sismember(self._sessions_of(name), sid))
+
+    @guarded
+    def end_session(self, name, sid):
+        if isinstance(name, str) and NAME.match(name) and isinstance(sid, str):
+            self._r.srem(self._sessions_of(name), sid)
+
     @guarded
     def get_secret_key(self):
         """The Flask secret key shared by every web process (made once, 32 random bytes)."""

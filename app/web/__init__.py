@@ -16,8 +16,14 @@ def _store_down(exc):
     """An unreachable run store (Redis) answers 503 at once, in words, for pages and scripts."""
     from flask import jsonify, request
 
-    message = (f"The run store and queue are unavailable ({exc}). Nothing already saved is lost; "
-               "try again in a moment.")
+    # the error's own text may name the store's address: it goes to the log, not to the visitor
+    from flask import current_app
+
+    current_app.logger.warning("the run store is unavailable (%s)", type(exc).__name__)
+    runs = getattr(current_app.config.get("BENDLINE"), "runs", None)
+    if runs is not None:
+        runs.store_unreachable()
+    message = "The run store and queue are unavailable. Nothing already saved is lost; try again in a moment."
     if request.path.startswith(("/api/", "/_dash-")) or request.accept_mimetypes.best == "application/json":
         return jsonify({"error": {"message": message}}), 503
     page = ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>Bendline: unavailable</title>"
@@ -49,7 +55,7 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
     """
     from bendline.inference.reader import read_series
 
-    from . import callbacks, layout
+    from . import callbacks, layout, security
     from .brief import create_brief_app
     from .downloads import register_downloads
 
@@ -65,6 +71,7 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
     server.config["BENDLINE"] = services
     server.config["MAX_CONTENT_LENGTH"] = services.max_upload_bytes * 2  # base64 inflates by 4/3
     server.register_error_handler(ConnectionError, _store_down)
+    security.install(server, allowed_hosts=services.allowed_hosts, team=services.team)
     samples = sample_list(services.samples_dir)
     demo_key = None
     if demo_sample:

@@ -32,6 +32,8 @@ class AppServices:
         Team mode (sign-in, shared runs, owner rules).
     samples_dir : str
     max_upload_bytes : int
+    allowed_hosts : frozenset of str, optional
+        Host names the server answers (:mod:`app.web.security`); None: any.
     """
 
     runs: object
@@ -39,6 +41,7 @@ class AppServices:
     team: bool = False
     samples_dir: str = SAMPLES_DIR
     max_upload_bytes: int = 20 * 1024 * 1024
+    allowed_hosts: frozenset | None = None
     extra: dict = field(default_factory=dict)
 
 
@@ -120,8 +123,7 @@ def store_guarded(fn, n_outputs, message_slots):
         try:
             return fn(*args, **kwargs)
         except ConnectionError as exc:
-            text = (f"The run store and queue are unavailable ({exc}). Nothing already saved is lost; "
-                    "this page retries by itself.")
+            text = "The run store and queue are unavailable. Nothing already saved is lost; this page retries by itself."
             out = [no_update] * n_outputs
             for i, value in message_slots.items():
                 out[i] = value(text) if callable(value) else value

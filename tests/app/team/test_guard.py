@@ -8,7 +8,7 @@ import pytest
 
 from .conftest import ADMIN, ADMIN_PW, USER, USER_PW
 
-PUBLIC = re.compile(r"^/(login|_favicon\.ico|assets/.*|_dash-component-suites/.*)$")
+PUBLIC = re.compile(r"^/(login|_favicon\.ico|favicon\.ico|assets/.*|_dash-component-suites/.*)$")
 
 
 @pytest.fixture
@@ -40,7 +40,7 @@ def test_every_route_refuses_an_unauthenticated_request(client):
         for method in sorted(rule.methods - {"HEAD", "OPTIONS"}):
             resp = c.open(path, method=method, json={} if method != "GET" else None)
             checked += 1
-            assert resp.status_code in (302, 401), (method, path, resp.status_code)
+            assert resp.status_code in (302, 401, 403), (method, path, resp.status_code)
             if resp.status_code == 302:
                 assert resp.headers["Location"].startswith("/login")
             body = resp.get_data(as_text=True)
@@ -91,3 +91,42 @@ def test_api_tokens_work_and_bad_tokens_do_not(client, team_users):
     token = team_users.new_token(USER)
     assert c.get("/api/v1/runs", headers={"Authorization": f"Bearer {token}"}).status_code == 200
     assert c.get("/api/v1/runs", headers={"Authorization": "Bearer nope"}).status_code == 401
+
+
+@pytest.mark.parametrize("target", ["/\t/evil.example", "/\n/evil.example", "/%09/evil.example".replace("%09", "\t"),
+                                    "\t//evil.example", "/\\evil.example", "https://evil.example/x",
+                                    "/\r\n/evil.example", " //evil.example"])
+def test_after_sign_in_only_same_origin_paths_are_followed(client, target):
+    # a browser drops tabs and line breaks from a URL: '/\t/evil.example' is '//evil.example'
+    c, _ = client
+    resp = _sign_in(c, ADMIN, ADMIN_PW, "/")
+    page = c.get("/login").get_data(as_text=True)
+    csrf = re.search(r'name="csrf" value="([^"]+)"', page).group(1)
+    resp = c.post("/login", data={"name": ADMIN, "password": ADMIN_PW, "csrf": csrf, "next": target})
+    assert resp.status_code == 302
+    location = resp.headers["Location"]
+    assert location == "/" or (location.startswith("/") and not location.startswith("//")
+                               and "evil" not in location), location
+
+
+def test_a_cookie_stops_working_at_sign_out_and_when_the_user_is_removed(client, team_users):
+    from http.cookies import SimpleCookie
+
+    c, server = client
+    resp = _sign_in(c, USER, USER_PW)
+    cookie = SimpleCookie(resp.headers["Set-Cookie"])["bendline_session"].value
+    assert c.get("/_dash-layout").status_code == 200
+    c.get("/logout")
+    other = server.test_client()  # someone who kept a copy of the cookie
+    other.set_cookie("bendline_session", cookie)
+    assert other.get("/_dash-layout").status_code == 401
+    # signed in again; then the account is removed and re-made under the same name
+    resp = _sign_in(c, USER, USER_PW)
+    cookie = SimpleCookie(resp.headers["Set-Cookie"])["bendline_session"].value
+    team_users.remove(USER)
+    team_users.add(USER, USER_PW)
+    stale = server.test_client()
+    stale.set_cookie("bendline_session", cookie)
+    assert stale.get("/_dash-layout").status_code == 401
+    assert stale.post("/api/v1/runs", json={"csv": "date,n\n2026-01-01,1\n", "spec": {}},
+                      headers={"X-Bendline-Request": "1"}).status_code == 401
