@@ -126,6 +126,15 @@ class TrendModel(TrendOutputs):
             )
         self.y = np.where(observed, np.nan_to_num(series.values), 0.0)
         self.y_obs = self.y[observed]
+        if not self.y_obs.any():
+            # the likelihood then pushes every level to minus infinity: the
+            # sampler would report a steep "decline" and a halving time that
+            # the data say nothing about
+            raise InputError(
+                f"every one of the {n_obs} counts that enter the fit is zero; there is no trend to "
+                "estimate (a growth rate needs at least one case)",
+                column="count",
+            )
         self.obs_index = np.flatnonzero(observed)
         self.log_completeness = np.zeros(n)
         for lag, frac in enumerate(spec.completeness[:n]):

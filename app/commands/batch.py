@@ -57,10 +57,6 @@ SUMMARY_COLUMNS = (
     "result_file",
 )
 
-#: First characters that make a spreadsheet read a text cell as a formula
-#: (OWASP, "CSV Injection"): = + - @, tab and carriage return.
-FORMULA_TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
-_EMBEDDED_FORMULA = re.compile(r"[,;\t|]\s*[=+\-@]")
 _RESERVED_NAMES = frozenset(
     {"con", "prn", "aux", "nul"} | {f"com{i}" for i in range(1, 10)} | {f"lpt{i}" for i in range(1, 10)}
 )
@@ -423,21 +419,6 @@ def summary_row(region, outcome, result_file=None):
     return row
 
 
-def neutralise(cell):
-    """A text cell a spreadsheet will not run as a formula (OWASP, "CSV Injection").
-
-    Text starting with ``= + - @``, a tab or a carriage return, or holding a
-    separator followed by one of those, gets a leading single quote. Numbers
-    and booleans are not text: they are returned as they are.
-    """
-    if not isinstance(cell, str):
-        return cell
-    if cell.startswith(FORMULA_TRIGGERS) or cell.lstrip().startswith(FORMULA_TRIGGERS[:4]) \
-            or _EMBEDDED_FORMULA.search(cell):
-        return "'" + cell
-    return cell
-
-
 def _cell(value):
     if value is None:
         return ""
@@ -446,6 +427,17 @@ def _cell(value):
     if isinstance(value, (int, float)):
         return value
     return neutralise(str(value))
+
+
+def neutralise(cell):
+    """The reports' CSV-injection rule (:func:`app.reports.tables.neutralise`), imported on first use.
+
+    The reports package pulls in Dash, which ``bendline fit`` and ``--help``
+    never need; importing it here keeps them quick.
+    """
+    from ..reports.tables import neutralise as _neutralise
+
+    return _neutralise(cell)
 
 
 def write_summary(path, rows):

@@ -22,6 +22,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import re
 
 from .. import wording
 from .content import reportable
@@ -30,26 +31,36 @@ from .content import reportable
 TABLES = ("segments", "changepoints", "band", "projection")
 #: First characters that make a spreadsheet read a cell as a formula (OWASP).
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+#: A separator followed by a formula character: some spreadsheets split an
+#: unquoted cell there and read the rest as a formula of its own.
+_EMBEDDED_FORMULA = re.compile(r"[,;\t|]\s*[=+\-@]")
 
 
 def neutralise(cell):
-    """A text cell made safe for spreadsheets: a leading quote before a formula character.
+    """A text cell a spreadsheet will not run as a formula: the one rule for every CSV we write.
 
     Parameters
     ----------
-    cell : str or None
-        Text (numbers are never passed here; they are written as numbers).
+    cell : str, number, bool or None
+        A table cell. Numbers and booleans are not text and are returned as
+        they are (a negative growth rate stays a number).
 
     Returns
     -------
-    str
-        ``cell`` unchanged, or ``"'" + cell`` when it starts with ``=``,
-        ``+``, ``-``, ``@``, a tab or a carriage return; ``""`` for None.
+    str or the number unchanged
+        ``""`` for None; ``"'" + cell`` when the text starts with ``= + - @``,
+        a tab or a carriage return, starts with those after leading
+        whitespace (``" =1+1"``), or holds a separator followed by one of
+        them; the text unchanged otherwise.
     """
     if cell is None:
         return ""
-    text = str(cell)
-    return "'" + text if text.startswith(FORMULA_STARTS) else text
+    if not isinstance(cell, str):
+        return cell
+    if (cell.startswith(FORMULA_STARTS) or cell.lstrip().startswith(FORMULA_STARTS[:4])
+            or _EMBEDDED_FORMULA.search(cell)):
+        return "'" + cell
+    return cell
 
 
 def _num(v):

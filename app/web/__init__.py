@@ -11,6 +11,27 @@ from .context import ROOT, AppServices, put_series, sample_list
 
 ASSETS = os.path.join(ROOT, "assets")
 
+#: Dash's page frame with the page's language set (WCAG 3.1.1: a screen reader
+#: picks its voice and pronunciation from it); used by the dashboard and the
+#: briefing view.
+INDEX_STRING = """<!DOCTYPE html>
+<html lang="en">
+    <head>
+        {%metas%}
+        <title>{%title%}</title>
+        {%favicon%}
+        {%css%}
+    </head>
+    <body>
+        {%app_entry%}
+        <footer>
+            {%config%}
+            {%scripts%}
+            {%renderer%}
+        </footer>
+    </body>
+</html>"""
+
 
 def _store_down(exc):
     """An unreachable run store (Redis) answers 503 at once, in words, for pages and scripts."""
@@ -66,6 +87,7 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
         update_title=None,
         serve_locally=True,
         suppress_callback_exceptions=True,
+        index_string=INDEX_STRING,
     )
     server = app.server
     server.config["BENDLINE"] = services
@@ -87,5 +109,6 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
     app.layout = serve_layout
     callbacks.register(app)
     register_downloads(server)
-    create_brief_app(server, services)
+    app.brief_app = create_brief_app(server, services)  # kept for tests that walk its callbacks
+    security.close_catch_alls(server)
     return app

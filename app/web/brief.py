@@ -60,7 +60,7 @@ RATES_CONFIG = {"displayModeBar": False, "displaylogo": False}
 
 def run_id_from_path(pathname):
     """The run id of ``/brief/<id>`` (None unless well formed)."""
-    if not pathname or not pathname.startswith(PREFIX):
+    if not isinstance(pathname, str) or not pathname.startswith(PREFIX):
         return None
     rid = pathname[len(PREFIX):].strip("/")
     return rid if valid_run_id(rid) else None
@@ -268,12 +268,13 @@ def create_brief_app(flask_server, services_):
     -------
     dash.Dash
     """
-    from . import ASSETS
+    from . import ASSETS, INDEX_STRING
 
     flask_server.config.setdefault("BENDLINE", services_)
     app = dash.Dash(
         __name__, server=flask_server, url_base_pathname=PREFIX, assets_folder=ASSETS,
         title="Bendline briefing", update_title=None, serve_locally=True, suppress_callback_exceptions=True,
+        index_string=INDEX_STRING,
     )
     app.layout = layout
     app.clientside_callback(  # the window's size, once, so the chart's type suits the screen

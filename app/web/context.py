@@ -72,7 +72,7 @@ def sample_list(samples_dir):
 
 def decode_upload(contents, max_bytes):
     """Bytes of a dcc.Upload value ("data:...;base64,....")."""
-    if not contents or "," not in contents:
+    if not isinstance(contents, str) or "," not in contents:
         raise InputError("the upload was empty")
     b64 = contents.split(",", 1)[1]
     if len(b64) * 3 // 4 > max_bytes:

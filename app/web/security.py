@@ -30,6 +30,8 @@ CSP = ("default-src 'self'; script-src 'self' 'unsafe-inline' 'unsafe-eval'; sty
 LOOPBACK = frozenset({"127.0.0.1", "localhost", "::1", "[::1]"})
 SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 API_WRITE_HEADER = "X-Bendline-Request"
+#: Dash's catch-all routes: the pages themselves are "/" and "/brief/<run id>"
+CATCH_ALL = frozenset({"/<path:path>", "/brief/<path:path>", "/brief/"})
 
 
 def _host_name(host_header):
@@ -85,17 +87,35 @@ def install(server, *, allowed_hosts=None, team=False):
         if isinstance(exc, HTTPException):
             return exc
         path = request.path
-        if path.startswith("/_dash-component-suites/"):
+        if "/_dash-component-suites/" in path:
             return _answer(404, "not found")
-        if path.startswith("/_dash-"):
+        if "/_dash-" in path:
             server.logger.warning("a malformed request to %s was refused (%s)", path, type(exc).__name__)
+            server.logger.debug("the refused request's error", exc_info=exc)
             return _answer(400, "the request was malformed and was not processed; nothing was changed")
         server.logger.exception("unexpected error on %s", path)
         return _answer(500, "something went wrong on the server; nothing already saved is lost")
 
 
+def close_catch_alls(server):
+    """Answer 404 where Dash would answer any path under its prefix with its page shell.
+
+    Called once every Dash app is on the server. The views are wrapped, not
+    checked before the request, so a team server's sign-in still comes first.
+    """
+    from .pages import message_page
+
+    def not_found(**_kwargs):
+        return message_page("No such page", "There is no page at this address. The dashboard is at /, "
+                            "a run's briefing view at /brief/<run id>.", 404)
+
+    for rule in server.url_map.iter_rules():
+        if rule.rule in CATCH_ALL:
+            server.view_functions[rule.endpoint] = not_found
+
+
 def _answer(status, message):
-    if request.path.startswith(("/api/", "/_dash-")) or request.accept_mimetypes.best == "application/json":
+    if request.path.startswith("/api/") or "/_dash-" in request.path or request.accept_mimetypes.best == "application/json":
         return jsonify({"error": {"message": message}}), status
     return (f"<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>Bendline</title></head>"
             f"<body><p>{message}</p></body></html>", status)

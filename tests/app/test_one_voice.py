@@ -132,3 +132,17 @@ def test_every_view_says_the_direction_the_json_says(tmp_path):
         other = "day" if unit == "week" else "week"
         assert f"per {other}" not in result["summary_text"] and f"a {other}" not in result["summary_text"]
         assert fig.layout.xaxis.title.text.endswith(f"per {unit})")
+
+
+def test_the_readme_lists_the_options_of_the_option_table():
+    """The README's option list is the table's own output, so it cannot drift from the flags."""
+    import os
+
+    from bendline.inference.options import markdown_table
+
+    root = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+    with open(os.path.join(root, "README.md"), encoding="utf-8") as fh:
+        readme = fh.read()
+    start = readme.index("<!-- options table")
+    block = readme[readme.index("\n", start) + 1:readme.index("<!-- end of options table -->")]
+    assert block.strip() == markdown_table().strip()

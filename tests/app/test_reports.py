@@ -196,9 +196,22 @@ def test_an_unconverged_result_is_marked_in_every_table(result):
 @pytest.mark.parametrize("cell, safe", [
     ("=1+1", "'=1+1"), ("+1", "'+1"), ("-2+3", "'-2+3"), ("@SUM(A1)", "'@SUM(A1)"), ("\tx", "'\tx"),
     ("\r=x", "'\r=x"), ("plain", "plain"), ("", ""), (None, ""), ("a=b", "a=b"), ("'=x", "'=x"),
+    # leading whitespace does not hide a formula (a file named " =1+1.csv"), nor a separator inside
+    (" =1+1", "' =1+1"), ("  @x", "'  @x"), ("\n-1+2", "'\n-1+2"), ("north;=1+1", "'north;=1+1"),
+    (-0.028, -0.028), (3, 3),
 ])
 def test_neutralise(cell, safe):
+    """OWASP "CSV Injection" (https://owasp.org/www-community/attacks/CSV_Injection)."""
     assert neutralise(cell) == safe
+
+
+def test_one_neutralising_rule_for_every_csv_the_product_writes():
+    import inspect
+
+    from bendline.app.commands import batch
+    for cell in (" =1+1", "north;=1+1", "=x", "plain", -0.5):
+        assert batch.neutralise(cell) == neutralise(cell)
+    assert "FORMULA" not in inspect.getsource(batch)  # the batch summary has no rule of its own
 
 
 def test_csv_injection_is_neutralised_and_numbers_stay_numbers(result):

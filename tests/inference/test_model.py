@@ -187,6 +187,19 @@ def test_too_few_observed_values_is_refused():
         TrendModel(s, ModelSpec(segments=2))
 
 
+def test_a_series_of_zeros_is_refused_not_fitted():
+    # all zeros: no trend to estimate; a fit would report a steep decline and a halving time
+    with pytest.raises(InputError, match="every one of the 60 counts that enter the fit is zero"):
+        TrendModel(Series.from_counts("2026-01-01", np.zeros(60)), ModelSpec(segments=2))
+    # zeros everywhere except in the values left out as incomplete: refused as well
+    values = np.zeros(60)
+    values[-3:] = 4
+    with pytest.raises(InputError, match="is zero"):
+        TrendModel(Series.from_counts("2026-01-01", values), ModelSpec(segments=2, drop_last=3))
+    values[10] = 1  # one case is enough to fit (the data then speak for a low level)
+    TrendModel(Series.from_counts("2026-01-01", values), ModelSpec(segments=2, drop_last=3))
+
+
 def test_drop_last_leaves_values_out_of_the_likelihood(small_series, rng):
     full = TrendModel(small_series, ModelSpec(segments=3))
     cut = TrendModel(small_series, ModelSpec(segments=3, drop_last=7))

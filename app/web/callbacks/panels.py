@@ -21,7 +21,9 @@ from ...store import FINISHED
 from .. import figures as F
 from .. import ids
 from ..context import current_user, get_series, services, store_guarded
-from ..layout import POLL_MS
+from .. import words as W
+from ..layout import CHART_WORDS, POLL_MS, words_id
+from ...reports.content import short_status
 
 #: The panels' outputs by name; callbacks build dicts keyed by these names and
 #: :func:`_as_list` orders them for Dash.
@@ -36,6 +38,8 @@ PANEL_OUTPUTS = {
     "banner_class": (ids.STATUS_BANNER, "className"), "state": (ids.FIGURE_RUN, "data"),
     "poll_off": (ids.POLL, "disabled"), "stop_off": (ids.STOP, "disabled"), "brief_href": (ids.BRIEF_LINK, "href"),
     "brief_class": (ids.BRIEF_LINK, "className"), "poll_ms": (ids.POLL, "interval"),
+    "announce": (ids.ANNOUNCER, "children"),
+    **{f"words_{key}": (words_id(graph), "children") for graph, key in CHART_WORDS},
 }
 NAMES = tuple(PANEL_OUTPUTS)
 CONTROL_NAMES = ("poll_off", "stop_off", "brief_href", "brief_class")
@@ -121,6 +125,35 @@ def queue_note(rec):
     return f"Queued: waiting for one of {len(workers)} worker{'s' if len(workers) != 1 else ''}."
 
 
+def announcement(rec, snapshot):
+    """What the status live region says: the short status while the run goes on, then the verdict.
+
+    It changes only when the run's state does (queued, running, finished), so
+    a screen reader announces "Provisional: still sampling" once and then
+    "Reportable: converged ..." or "Not reportable: do not report these
+    numbers ...", not every snapshot.
+    """
+    if rec is None:
+        return ""
+    if rec["status"] not in FINISHED:
+        return short_status(rec["status"], snapshot)[1]
+    return wording.status_line(rec, snapshot)[1]
+
+
+def _items(lines):
+    return [html.Li(line) for line in lines]
+
+
+def words_of(sd, snap, cps=None, trace_param=None, only=None):
+    """The charts' text alternatives as list items, by output name (all, or the keys in ``only``)."""
+    makers = {
+        "main": lambda: W.main_words(sd, snap, cps or []), "hist": lambda: W.changes_words(snap),
+        "rates": lambda: W.rates_words(snap), "trace": lambda: W.trace_words(snap, trace_param),
+        "weekday": lambda: W.weekday_words(snap), "residuals": lambda: W.residual_words(snap),
+    }
+    return {f"words_{k}": _items(make()) for k, make in makers.items() if only is None or k in only}
+
+
 def headline_children(snapshot):
     out = []
     for label, value, detail in wording.headline_stats(snapshot):
@@ -197,6 +230,8 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, strip=
     Skipped when the only change is the trace picker's value and it is the
     one the poll just chose (``state`` says so): the poll drew that panel.
     """
+    if not isinstance(state, dict):
+        state = None  # what this callback wrote last; anything else is not ours
     if (state and state.get("run") == run_id and state.get("trace_param") == trace_param
             and ctx.triggered_id == ids.TRACE_PARAM):
         return _as_list({})
@@ -210,7 +245,8 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, strip=
             "trace": F.empty_figure(""), "trace_options": [], "trace_value": None, "weekday": F.empty_figure(""),
             "residuals": F.empty_figure(""), "diag_rows": [], "diag_summary": "", "headline": [], "summary": "",
             "warnings": [], "progress": "", "banner": "", "banner_class": "", "state": None, "poll_off": True,
-            "stop_off": True, "brief_href": "#", "brief_class": "btn link-btn disabled", "poll_ms": POLL_MS})
+            "stop_off": True, "brief_href": "#", "brief_class": "btn link-btn disabled", "poll_ms": POLL_MS,
+            "announce": "", **words_of(None, None)})
     sd = series.to_dict()
     # a run on another series (e.g. a new file was loaded) is not drawn over this one
     if rec is not None and rec.get("series_hash") != series.content_hash():
@@ -229,6 +265,7 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, strip=
     state = dict(_state(run_id if rec else None, snap, counts, trace_param), series=series_key,
                  controls=list(controls.values()), trace_names=[o["value"] for o in options])
     return _as_list(dict(
+        announce=announcement(rec, snap), **words_of(sd, snap, cps, trace_param),
         main=main, hist=hist, rates=F.rates_figure(snap, highlight_segment=highlight), trace=trace,
         trace_options=options, trace_value=trace_param, weekday=F.weekday_figure(snap), residuals=resid,
         diag_rows=F.diagnostics_rows(snap), diag_summary=F.diagnostics_summary(snap) if snap else "",
@@ -260,7 +297,7 @@ def _start_run(sd, rec, snap, cps, highlight, run_id, state):
         main=to_patch(F.main_updates(sd, snap, cps or [], highlight_segment=highlight)),
         headline=headline_children(snap), summary=summary_children(rec, snap), warnings=[],
         progress=queue_note(rec) or wording.progress_line(rec, snap), banner=banner,
-        banner_class=f"banner {banner_cls}", poll_ms=FIRST_POLL_MS,
+        banner_class=f"banner {banner_cls}", poll_ms=FIRST_POLL_MS, announce=announcement(rec, snap),
         state=dict(state, run=run_id, iteration=(snap or {}).get("iteration"), phase=(snap or {}).get("phase"),
                    controls=list(controls.values())),
         **controls)
@@ -322,7 +359,7 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param, strip=None)
     state = state or {}
     banner_cls, banner = wording.status_line(rec, snap)
     out = {"progress": queue_note(rec) or wording.progress_line(rec, snap), "banner": banner,
-           "banner_class": f"banner {banner_cls}"}
+           "banner_class": f"banner {banner_cls}", "announce": announcement(rec, snap)}
     # Controls only when they change: Dash fires every callback listening to an
     # output that is set, even to the same value (the run list and the export
     # links listen to the poll's "disabled").
@@ -345,6 +382,7 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param, strip=None)
     out["headline"] = headline_children(snap)
     out["summary"] = summary_children(rec, snap)
     out["warnings"] = warning_children(snap)
+    out.update(words_of(sd, snap, cps, only=("main",)))
     if snap.get("band") and not state.get("banded") and not finished:
         # The run's first band: send the main chart alone so the browser draws
         # it at once; the other panels follow on the next poll (the state keeps
@@ -364,10 +402,13 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param, strip=None)
         else:
             fig = F.changepoint_figure(sd, snap, highlight_segment=highlight, averaged=averaged)
             out["hist"], counts["hist"] = fig, len(fig.data)
+        out.update(words_of(sd, snap, only=("hist",)))
         if new["segments"] != old.get("segments"):
             out["rates"] = F.rates_figure(snap, highlight_segment=highlight)
+            out.update(words_of(sd, snap, only=("rates",)))
         if new["weekday"] != old.get("weekday"):
             out["weekday"] = F.weekday_figure(snap)
+            out.update(words_of(sd, snap, only=("weekday",)))
     else:  # not yet: the marks stay, so a later poll redraws them
         new["segments"], new["weekday"] = old.get("segments"), old.get("weekday")
     param = state.get("trace_param")
@@ -394,6 +435,7 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param, strip=None)
             out["residuals"], counts["resid"] = fig, len(fig.data)
         out["diag_rows"] = F.diagnostics_rows(snap)
         out["diag_summary"] = F.diagnostics_summary(snap)
+        out.update(words_of(sd, snap, trace_param=param, only=("trace", "residuals")))
     else:
         trace_names = state.get("trace_names")
         new["diag"], new["phase"] = old.get("diag"), old.get("phase")
@@ -404,21 +446,22 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param, strip=None)
 
 def highlight(click, current):
     """Clicking a segment's row in the rates chart highlights it; clicking again clears."""
-    points = (click or {}).get("points") or []
-    if not points:
+    points = click.get("points") if isinstance(click, dict) else None
+    if not points or not isinstance(points, list) or not isinstance(points[0], dict):
         return no_update
     seg = points[0].get("customdata")
     if isinstance(seg, (list, tuple)):
         seg = seg[0] if seg else None
-    if seg is None:
-        return no_update
+    if isinstance(seg, bool) or not isinstance(seg, (int, float)) or seg != seg:
+        return no_update  # only the rates chart's own segment numbers
     seg = int(seg)
     return None if seg == current else seg
 
 
 def sync_zoom(relayout):
     """Zooming the main chart's date axis zooms the change-date chart to match."""
-    relayout = relayout or {}
+    if not isinstance(relayout, dict):
+        return no_update
     p = Patch()
     if "xaxis.range[0]" in relayout and "xaxis.range[1]" in relayout:
         p["layout"]["xaxis"]["range"] = [relayout["xaxis.range[0]"], relayout["xaxis.range[1]"]]
