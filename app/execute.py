@@ -78,16 +78,17 @@ def execute_run(store_location, run_id, *, store=None):
                 pass  # the store is away for a moment; keep sampling
         return poll["stop"]
 
+    sink = StoreSink(store, run_id)
     try:
-        series = Series.from_dict(store.get_series(run_id))
+        series = Series.from_dict(_patiently(lambda: store.get_series(run_id)))
         result, final = fit_result(
-            series, rec["options"], sink=StoreSink(store, run_id),
+            series, rec["options"], sink=sink,
             on_snapshot=on_snapshot, should_stop=should_stop, given=rec.get("spec"),
         )
         if result is not None:
             result["run_id"] = run_id
             if rec.get("kind") == "segment-count":
-                result["loo"] = _loo(series, rec["options"], store, run_id, final)
+                result["loo"] = _loo(series, rec["options"], sink, final)
         status = final["status"] if final else "failed"
         fields = {
             "status": status,
@@ -104,7 +105,7 @@ def execute_run(store_location, run_id, *, store=None):
             fields["reason"] = {"time budget": "the time budget (max_seconds) ended before convergence",
                                 "draw limit": "the draw limit (max_draws) was reached before convergence"}.get(
                 (final or {}).get("ended_by"), "the run ended before convergence")
-        _finish(store, run_id, me, fields, final, result)
+        _finish(store, run_id, me, fields, final, result, sink=sink)
         return status
     except InputError as exc:
         _finish(store, run_id, me, {"status": "failed", "reason": str(exc), "finished_at": now_iso()})
@@ -112,6 +113,10 @@ def execute_run(store_location, run_id, *, store=None):
     except MemoryError:
         _finish(store, run_id, me, {"status": "failed", "finished_at": now_iso(),
                                     "reason": "the worker ran out of memory; try fewer chains or draws"})
+        return "failed"
+    except ConnectionError:  # the store stayed away longer than the worker's patience
+        _finish(store, run_id, me, {"status": "failed", "finished_at": now_iso(),
+                                    "reason": "the worker lost the run store (Redis) for too long; resubmit the run"})
         return "failed"
     except Exception as exc:  # report, never hang
         _finish(store, run_id, me, {"status": "failed", "finished_at": now_iso(),
@@ -126,14 +131,28 @@ def execute_run(store_location, run_id, *, store=None):
 WRITE_PATIENCE = 900.0
 
 
-def _finish(store, run_id, me, fields, final=None, result=None, *, sleep=time.sleep, clock=time.monotonic):
+def _patiently(read, *, sleep=time.sleep, clock=time.monotonic):
+    """``read()``, retried every 2 s while the store is away, for :data:`WRITE_PATIENCE` seconds."""
+    deadline = clock() + WRITE_PATIENCE
+    while True:
+        try:
+            return read()
+        except ConnectionError:
+            if clock() > deadline:
+                raise
+            sleep(2.0)
+
+
+def _finish(store, run_id, me, fields, final=None, result=None, *, sink=None, sleep=time.sleep,
+            clock=time.monotonic):
     """Write a run's final state once, and only while this worker still holds it.
 
     The status goes first, conditionally (:meth:`RunStore.update_run_if`):
     a run the server has meanwhile marked failed, or one deleted, keeps its
     state and gets nothing from this worker. A run marked for deletion is
-    removed here, by the worker that held it. While the store is away the
-    write is retried for :data:`WRITE_PATIENCE` seconds.
+    removed here, by the worker that held it. Draws that waited out a store
+    outage in ``sink`` go first. While the store is away the write is
+    retried for :data:`WRITE_PATIENCE` seconds.
     """
     deadline = clock() + WRITE_PATIENCE
     while True:
@@ -142,6 +161,8 @@ def _finish(store, run_id, me, fields, final=None, result=None, *, sleep=time.sl
             if rec is not None and rec.get("delete_requested"):
                 store.delete_run(run_id)
                 return False
+            if sink is not None:
+                sink.flush()
             if store.update_run_if(run_id, {"status": "running", "worker": me}, **fields) is None:
                 return False  # failed by the server, taken over, or deleted: not ours to write
             if final is not None:
@@ -155,14 +176,14 @@ def _finish(store, run_id, me, fields, final=None, result=None, *, sleep=time.sl
             sleep(2.0)
 
 
-def _loo(series, options, store, run_id, final):
-    """PSIS-LOO of a member of a segment-count comparison, from its stored draws."""
+def _loo(series, options, sink, final):
+    """PSIS-LOO of a member of a segment-count comparison, from its draws."""
     from bendline.inference.compare import loo_summary
     from bendline.inference.model import TrendModel
     from bendline.inference.spec import spec_from_options
 
     model = TrendModel(series, spec_from_options(options)[0])
-    positions, _ = store.read_draws(run_id)
+    positions, _ = sink.read()
     return loo_summary(model, positions, final)
 
 

@@ -14,6 +14,8 @@ from __future__ import annotations
 
 import re
 
+import numpy as np
+
 RUN_ID = re.compile(r"^[0-9a-f]{16}$")
 STATUSES = ("queued", "running", "converged", "unconverged", "stopped", "failed")
 FINISHED = frozenset({"converged", "unconverged", "stopped", "failed"})
@@ -160,24 +162,56 @@ def open_store(location):
 
 
 class StoreSink:
-    """The engine's draw-sink contract on top of a run store."""
+    """The engine's draw-sink contract on top of a run store, kept working through a store outage.
+
+    The draws are kept in memory as well (the engine's own checks read them
+    from there) and written through to the store for the panels and for
+    other processes. While the store cannot be reached, blocks wait in order
+    and go out with the next write that succeeds; :meth:`flush` sends what
+    is still waiting (the worker calls it before writing the final state).
+    """
 
     def __init__(self, store, run_id):
+        from bendline.inference.sinks import MemorySink
+
         self.store = store
         self.run_id = run_id
-        self._draws = 0
+        self._local = MemorySink()
+        self._waiting = []  # ("reset", chains, names) or ("append", positions, log_density)
 
     def reset(self, chains, names):
-        self.store.reset_draws(self.run_id, chains, list(names))
-        self._draws = 0
+        self._local.reset(chains, names)
+        self._waiting = [("reset", chains, list(names))]
+        self.flush(quiet=True)
 
     def append(self, positions, log_density):
-        self.store.append_draws(self.run_id, positions, log_density)
-        self._draws += positions.shape[1]
+        self._local.append(positions, log_density)
+        self._waiting.append(("append", np.asarray(positions), np.asarray(log_density)))
+        self.flush(quiet=True)
+
+    def flush(self, quiet=False):
+        """Send every waiting block, in order; True when none is left.
+
+        With ``quiet``, an unreachable store leaves them waiting; otherwise
+        its :class:`ConnectionError` is raised.
+        """
+        try:
+            while self._waiting:
+                what, a, b = self._waiting[0]
+                if what == "reset":
+                    self.store.reset_draws(self.run_id, a, b)
+                else:
+                    self.store.append_draws(self.run_id, a, b)
+                self._waiting.pop(0)
+        except ConnectionError:
+            if not quiet:
+                raise
+            return False
+        return True
 
     def read(self):
-        return self.store.read_draws(self.run_id)
+        return self._local.read()
 
     @property
     def draws(self):
-        return self._draws
+        return self._local.draws

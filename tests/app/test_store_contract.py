@@ -371,3 +371,34 @@ def test_redacted_url_hides_credentials():
     assert "pw" not in redacted_url("redis://h/0?password=pw&db=1")
     assert "sock" in redacted_url("unix://:pw@/run/redis.sock?db=0")
     assert "pw" not in redacted_url("unix://:pw@/run/redis.sock?db=0")
+
+
+def test_the_draw_sink_keeps_its_draws_through_a_store_outage(tmp_path):
+    """Blocks written while the store is away wait, in order, and reach it when it returns."""
+    class Flaky(DiskRunStore):
+        down = False
+
+        def append_draws(self, run_id, positions, log_density):
+            if self.down:
+                raise ConnectionError("store away")
+            return super().append_draws(run_id, positions, log_density)
+
+    store = Flaky(str(tmp_path / "runs"))
+    rng = np.random.default_rng(4)
+    blocks = [(rng.normal(size=(2, 3, 4)), rng.normal(size=(2, 3))) for _ in range(4)]
+    sink = StoreSink(store, "0123456789abcdef")
+    sink.reset(2, ["a", "b", "c", "d"])
+    sink.append(*blocks[0])
+    store.down = True
+    sink.append(*blocks[1])
+    sink.append(*blocks[2])
+    assert sink.draws == 9 and sink.read()[0].shape == (2, 9, 4)  # the engine still sees every draw
+    assert store.read_draws("0123456789abcdef")[0].shape == (2, 3, 4)
+    with pytest.raises(ConnectionError):
+        sink.flush()
+    store.down = False
+    sink.append(*blocks[3])
+    positions, lp = store.read_draws("0123456789abcdef")
+    np.testing.assert_array_equal(positions, np.concatenate([b[0] for b in blocks], axis=1))
+    np.testing.assert_array_equal(lp, np.concatenate([b[1] for b in blocks], axis=1))
+    assert sink.flush()

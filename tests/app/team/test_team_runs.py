@@ -207,3 +207,50 @@ def test_a_run_from_another_engine_version_is_refused_with_the_reason(redis_url,
     CeleryExecutor(redis_url).submit("f" * 16)
     failed = api.wait("f" * 16, ("failed",), timeout=60)
     assert "version" in failed["reason"]
+
+
+def test_a_running_fit_survives_a_redis_outage_longer_than_the_heartbeat_timeout(tmp_path):
+    """Redis away for longer than HEARTBEAT_TIMEOUT: the worker keeps its claim and the run is not failed.
+
+    The outage's length is the scenario (it must outlast the heartbeat
+    timeout), not a guess at the machine's speed: the run is held open by
+    LONG's work and stopped by the test.
+    """
+    from bendline.app.runs import HEARTBEAT_TIMEOUT
+    from bendline.app.team.users import UserStore
+
+    redis = RedisServer(tmp_path / "own-redis", appendonly=True).start()
+    worker = web = None
+    try:
+        users = UserStore(redis.url)
+        users.add("cy", "a long test password")
+        token = users.new_token("cy")
+        web = Server(tmp_path, "--team", "--redis", redis.url, "--insecure-cookies").start()
+        worker = Worker(redis.url, tmp_path, "w1").start()
+        api = Api(web.url, token)
+        run = api.submit_file(SAMPLE, LONG)
+        api.wait(run["id"], ("running",), timeout=90)
+        redis.stop()
+        time.sleep(HEARTBEAT_TIMEOUT + 8)
+        redis.start()
+        deadline = time.time() + 30
+        code = None
+        while time.time() < deadline:
+            code, rec = api.call("GET", f"/api/v1/runs/{run['id']}")
+            if code == 200:
+                break
+            time.sleep(0.5)
+        assert code == 200
+        # the web server's reaper gets a full heartbeat period after the outage before judging
+        time.sleep(HEARTBEAT_TIMEOUT / 3)
+        rec = api.wait(run["id"], ("running",), timeout=10)
+        assert not rec.get("reason"), rec
+        api.call("POST", f"/api/v1/runs/{run['id']}/stop")
+        done = api.wait(run["id"], ("stopped", "unconverged", "converged"), timeout=120)
+        assert done["status"] != "failed" and "heartbeat" not in (done.get("reason") or ""), done
+    finally:
+        if worker:
+            worker.stop()
+        if web:
+            web.stop()
+        redis.stop()
