@@ -106,6 +106,8 @@ def execute_run(store_location, run_id, *, store=None):
                                 "draw limit": "the draw limit (max_draws) was reached before convergence"}.get(
                 (final or {}).get("ended_by"), "the run ended before convergence")
         _finish(store, run_id, me, fields, final, result, sink=sink)
+        if rec.get("kind") == "segment-count" and rec.get("parent"):
+            _finish_comparison(store, rec["parent"])
         return status
     except InputError as exc:
         _finish(store, run_id, me, {"status": "failed", "reason": str(exc), "finished_at": now_iso()})
@@ -174,6 +176,16 @@ def _finish(store, run_id, me, fields, final=None, result=None, *, sink=None, sl
             if clock() > deadline:
                 return False
             sleep(2.0)
+
+
+def _finish_comparison(store, compare_id):
+    """The last member of a segment-count comparison to end completes it (no browser needed)."""
+    from .runs import RunService, SegmentComparison
+
+    try:
+        SegmentComparison(RunService(store, executor=None)).state(compare_id)
+    except ConnectionError:
+        pass  # the server's maintenance pass completes it when the store is back
 
 
 def _loo(series, options, sink, final):

@@ -30,6 +30,11 @@ from .version import CODE_VERSION
 HEARTBEAT_TIMEOUT = 30.0
 
 
+def _busy(rec):
+    """A fit that holds a place in its owner's in-flight limit."""
+    return rec.get("kind") != "compare" and rec["status"] in ("queued", "running") and not rec.get("held")
+
+
 def now_iso():
     return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
 
@@ -133,9 +138,8 @@ class RunService:
             raise QueueUnavailable(str(exc)) from exc
 
     def in_flight(self, owner):
-        """Runs of ``owner`` queued or running and not held."""
-        return sum(1 for r in self.store.list_runs(10_000)
-                   if r.get("owner") == owner and r["status"] in ("queued", "running") and not r.get("held"))
+        """Fits of ``owner`` queued or running and not held (a comparison's record is not a fit; its members are)."""
+        return sum(1 for r in self.store.list_runs(10_000) if r.get("owner") == owner and _busy(r))
 
     def maintain(self):
         """Reap runs whose worker stopped beating, and start held runs that now have room.
@@ -146,11 +150,13 @@ class RunService:
         runs = self.store.list_runs(10_000)
         for rec in runs:
             self._reap(rec)
+            if rec.get("kind") == "compare" and rec["status"] == "running":
+                SegmentComparison(self).state(rec["id"])  # members done while nobody watched
         if self.max_in_flight is None:
             return
         busy = {}
         for rec in self.store.list_runs(10_000):
-            if rec["status"] in ("queued", "running") and not rec.get("held"):
+            if _busy(rec):
                 busy[rec.get("owner")] = busy.get(rec.get("owner"), 0) + 1
         for rec in sorted(self.store.list_runs(10_000), key=lambda r: r.get("created_ts", 0)):
             owner = rec.get("owner")
@@ -165,15 +171,6 @@ class RunService:
             except QueueUnavailable:
                 pass  # marked failed with the reason
 
-    def resubmit(self, run_id, *, owner):
-        """A new run with the same series and options as ``run_id``."""
-        rec = self.store.get_run(run_id)
-        if rec is None:
-            raise KeyError(run_id)
-        series = Series.from_dict(self.store.get_series(run_id))
-        return self.submit(series, rec["options"], owner=owner, kind=rec.get("kind", "fit"), parent=run_id)
-
-    # -- controlling
     def stop(self, run_id, *, user=None, admin=False):
         """Ask a run to stop (keeps its draws). Only its owner or an admin may."""
         rec = self.get(run_id)
@@ -286,6 +283,16 @@ class SegmentComparison:
         from bendline.inference.compare import _options_for
 
         parent = new_run_id()
+        record = {
+            "id": parent, "kind": "compare", "owner": owner, "created_at": now_iso(),
+            "created_ts": self.runs.clock(), "series_name": series.name or "series",
+            "series_hash": series.content_hash(), "segments": None, "options": dict(options),
+            "seed": int(options.get("seed", 1)), "status": "running", "reason": None,
+            "members": [], "infeasible": [], "members_pending": True, "code_version": CODE_VERSION,
+            "server_instance": self.runs.instance,
+        }
+        # the record first, so a member that ends at once finds its comparison
+        self.runs.store.create_run(record, series.to_dict())
         members, infeasible = [], []
         for k in ks:
             try:
@@ -294,16 +301,9 @@ class SegmentComparison:
                 members.append({"segments": k, "run": rec["id"]})
             except InputError as exc:
                 infeasible.append({"segments": k, "feasible": False, "reason": exc.detail})
-        record = {
-            "id": parent, "kind": "compare", "owner": owner, "created_at": now_iso(),
-            "created_ts": self.runs.clock(), "series_name": series.name or "series",
-            "series_hash": series.content_hash(), "segments": None, "options": dict(options),
-            "seed": int(options.get("seed", 1)), "status": "running", "reason": None,
-            "members": members, "infeasible": infeasible, "code_version": CODE_VERSION,
-            "server_instance": self.runs.instance,
-        }
-        self.runs.store.create_run(record, series.to_dict())
-        return record
+        self.runs.store.update_run(parent, members=members, infeasible=infeasible, members_pending=False)
+        done, _support = self.state(parent)  # members that already ended (an inline executor) complete it now
+        return done or self.runs.get(parent)
 
     def state(self, compare_id):
         """(record, support list or None): finishes the comparison when all members are done."""
@@ -315,11 +315,17 @@ class SegmentComparison:
         done = self.runs.result(compare_id)
         if done is not None:
             return rec, done["segment_support"]
+        if rec.get("members_pending"):
+            return rec, None  # still submitting its members
+        if rec["status"] in FINISHED:
+            return rec, None  # failed (no segment count could be compared)
         fits = list(rec.get("infeasible", []))
         finished = 0
+        statuses = []
         for m in rec["members"]:
             child = self.runs.get(m["run"])
-            if child is not None and child["status"] in FINISHED:
+            statuses.append((child or {}).get("status", "failed"))
+            if child is None or child["status"] in FINISHED:  # a deleted member counts as failed
                 finished += 1
                 res = self.runs.result(m["run"])
                 if res and "loo" in res:
@@ -339,9 +345,12 @@ class SegmentComparison:
             row.pop("pointwise", None)
         self.runs.store.put_result(compare_id, {"segment_support": support,
                                                 "change_probability": change_probability(fits, support)})
-        all_converged = all(s.get("converged") for s in support if s.get("feasible"))
-        rec = self.runs.store.update_run(compare_id, status="converged" if all_converged else "unconverged",
-                                         finished_at=now_iso())
+        # converged only when every member fit is: a failed or stopped member leaves it unconverged
+        all_converged = all(st == "converged" for st in statuses) and all(
+            s.get("converged") for s in support if s.get("feasible"))
+        rec = self.runs.store.update_run(
+            compare_id, status="converged" if all_converged else "unconverged", finished_at=now_iso(),
+            reason=None if all_converged else "not every segment count's fit converged; read the support with care")
         return rec, support
 
     def change_probability(self, compare_id):

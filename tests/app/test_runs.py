@@ -115,9 +115,9 @@ def test_runs_survive_a_restart_and_orphans_are_marked(tmp_path, series):
     assert svc2.get(held["id"])["status"] == "failed"
     assert svc2.get(done["id"])["status"] in ("converged", "unconverged")
     assert svc2.result(done["id"]) is not None
-    again = svc2.resubmit(held["id"], owner="ana")
+    # the failed run's series and options are kept, so it can be fitted again
+    again = svc2.submit(svc2.series(held["id"]), svc2.get(held["id"])["options"], owner="ana")
     assert svc2.get(again["id"])["status"] in ("converged", "unconverged")
-    assert again["parent"] == held["id"]
 
 
 def test_version_mismatch_is_reported_not_hung(tmp_path, series):
@@ -164,6 +164,7 @@ def test_a_segment_comparison_fits_each_count_and_recommends_one(tmp_path, serie
     rec = cmp.start(series, dict(FAST, draws=150, min_segment_days=14), owner="ana", ks=(1, 2, 3, 9))
     assert [m["segments"] for m in rec["members"]] == [1, 2, 3]
     assert rec["infeasible"][0]["segments"] == 9  # too many for 90 days: reported, not fitted
+    assert rec["status"] == "converged"  # completed on the server, without anyone asking for its state
     done, support = cmp.state(rec["id"])
     assert done["status"] == "converged"
     assert [s["segments"] for s in support] == [1, 2, 3, 9]
@@ -171,6 +172,33 @@ def test_a_segment_comparison_fits_each_count_and_recommends_one(tmp_path, serie
     assert sum(s["weight"] for s in support) == pytest.approx(1.0, abs=1e-3)
     again, support2 = cmp.state(rec["id"])  # stored: the same answer without recomputing
     assert support2 == support
+
+
+def test_a_comparison_is_not_a_run_in_flight_and_ends_when_its_members_do(tmp_path, series):
+    from bendline.app.runs import SegmentComparison
+
+    class Holding:
+        def __init__(self):
+            self.queued = []
+
+        def submit(self, run_id):
+            self.queued.append(run_id)
+
+    store = DiskRunStore(str(tmp_path))
+    executor = Holding()
+    svc = RunService(store, executor, max_in_flight=1)
+    rec = SegmentComparison(svc).start(series, dict(FAST, min_segment_days=14), owner="ana", ks=(1, 2))
+    first, second = (m["run"] for m in rec["members"])
+    assert executor.queued == [first] and svc.get(second)["held"]
+    assert svc.in_flight("ana") == 1  # the member, not the comparison's own record
+    store.update_run(first, status="converged")
+    svc.maintain()
+    assert executor.queued == [first, second]  # the comparison's record did not hold its member back
+    store.update_run(second, status="failed", reason="killed")
+    svc.maintain()  # nobody polls the comparison: the server's maintenance pass ends it
+    done = svc.get(rec["id"])
+    # ended, and not converged: here no member left a result to compare, so it failed with the reason
+    assert done["status"] == "failed" and "no segment count" in done["reason"]
 
 
 @pytest.mark.parametrize("backend", ["disk", "redis"])
