@@ -174,6 +174,99 @@ def delete_run(run_id):
     return jsonify({"id": run_id, "deleted": False, "status": "deleting"}), 202
 
 
+_NO_SUCH_BOARD = "no such board; board ids are the 16-character ids that POST /api/v1/boards returns"
+
+
+def _board_submission():
+    """(data, label, by, spec, loader) of a board or release request: the file, and ``by`` in the spec."""
+    data, label, spec, loader = _read_submission()
+    spec, loader = _split_loader_keys(spec, loader)
+    loader.pop("region", None)  # a board fits every series: no one region
+    by = spec.pop("by", None)
+    if by is not None and (not isinstance(by, str) or not by.strip()):
+        raise Refused(400, f"'by' must name the column that names the series, got {by!r}",
+                      source="spec", column="by")
+    try:
+        spec = check_public(spec)
+    except InputError as exc:
+        raise Refused.from_input_error(exc, source="spec") from None
+    return data, label, by, spec, loader
+
+
+def _board_answer(board, status):
+    from .boards import api_view, board_view
+
+    body = api_view(board_view(board, services().runs))
+    body.update(url=f"/api/v1/boards/{board['id']}", view=f"/board/{board['id']}")
+    response = jsonify(body)
+    response.status_code = status
+    response.headers["Location"] = body["url"]
+    return response
+
+
+@api.post("/boards")
+def create_board():
+    """A board from a long-format file: every series fitted; ``spec`` holds ``by`` and the fit options."""
+    from .boards import BoardService
+
+    try:
+        data, label, by, spec, loader = _board_submission()
+        user, _ = current_user()
+        try:
+            board = BoardService(services().runs).create(data, label, by, spec, owner=user, loader=loader)
+        except InputError as exc:
+            raise Refused.from_input_error(exc, source=label) from None
+    except Refused as exc:
+        return jsonify({"error": exc.body}), exc.status
+    except QueueUnavailable:
+        return _error(503, "the board could not be queued: the fitting queue is not reachable right now")
+    return _board_answer(board, 201)
+
+
+@api.get("/boards")
+def list_boards():
+    from .boards import BoardService
+
+    return jsonify({"boards": [{"id": b["id"], "name": b.get("series_name"), "owner": b.get("owner"),
+                                "created_at": b.get("created_at"), "releases": len(b.get("releases", []))}
+                               for b in BoardService(services().runs).list()]})
+
+
+@api.get("/boards/<board_id>")
+def get_board(board_id):
+    from .boards import BoardService
+
+    board = BoardService(services().runs).get(board_id) if valid_run_id(board_id) else None
+    if board is None:
+        return _error(404, _NO_SUCH_BOARD)
+    return _board_answer(board, 200)
+
+
+@api.post("/boards/<board_id>/releases")
+def add_release(board_id):
+    """The next release of a board's file (its owner or an admin): every series is fitted again."""
+    from .boards import BoardService
+
+    boards = BoardService(services().runs)
+    board = boards.get(board_id) if valid_run_id(board_id) else None
+    if board is None:
+        return _error(404, _NO_SUCH_BOARD)
+    user, admin = current_user()
+    if board.get("owner") != user and not admin:
+        return _error(403, "only the board's owner or an admin can add a release")
+    try:
+        data, label, _by, _spec, _loader = _board_submission()  # the board's own by and spec are kept
+        try:
+            board = boards.add_release(board_id, data, label, owner=user)
+        except InputError as exc:
+            raise Refused.from_input_error(exc, source=label) from None
+    except Refused as exc:
+        return jsonify({"error": exc.body}), exc.status
+    except QueueUnavailable:
+        return _error(503, "the release could not be queued: the fitting queue is not reachable right now")
+    return _board_answer(board, 201)
+
+
 @api.route("/", defaults={"rest": ""}, methods=["GET", "POST", "PUT", "PATCH", "DELETE"])
 @api.route("/<path:rest>", methods=["GET", "POST", "PUT", "PATCH", "DELETE"])
 def unknown_endpoint(rest):
@@ -187,7 +280,16 @@ def unknown_endpoint(rest):
         return _wrong_method("POST")
     if rest.startswith("runs/"):  # an id holding a slash: never a run
         return _error(404, _NO_SUCH_RUN)
-    return _error(404, "no such endpoint; the API has /api/v1/runs and /api/v1/runs/<id>")
+    if rest == "boards":
+        return _wrong_method("GET, POST")
+    if re.fullmatch(r"boards/[^/]+", rest):
+        return _wrong_method("GET")
+    if re.fullmatch(r"boards/[^/]+/releases", rest):
+        return _wrong_method("POST")
+    if rest.startswith("boards/"):
+        return _error(404, _NO_SUCH_BOARD)
+    return _error(404, "no such endpoint; the API has /api/v1/runs, /api/v1/runs/<id>, /api/v1/boards and "
+                       "/api/v1/boards/<id>")
 
 
 def _wrong_method(allowed):

@@ -32,7 +32,8 @@ HEARTBEAT_TIMEOUT = 30.0
 
 def _busy(rec):
     """A fit that holds a place in its owner's in-flight limit."""
-    return rec.get("kind") != "compare" and rec["status"] in ("queued", "running") and not rec.get("held")
+    return (rec.get("kind") not in ("compare", "board") and rec["status"] in ("queued", "running")
+            and not rec.get("held"))
 
 
 def now_iso():
@@ -217,7 +218,8 @@ class RunService:
         return self._reap(rec)
 
     def list(self, limit=200):
-        return [self._reap(r) for r in self.store.list_runs(limit)]
+        """Runs and comparisons, newest first (boards are listed by :class:`app.boards.BoardService`)."""
+        return [self._reap(r) for r in self.store.list_runs(limit) if r.get("kind") != "board"]
 
     def snapshot(self, run_id):
         return self.store.get_snapshot(run_id) if valid_run_id(run_id) else None

@@ -35,10 +35,11 @@ on this package when they check a file, so that rebinding
 from __future__ import annotations
 
 from .columns import COUNT_NAMES, DATE_NAMES, REGION_NAMES
-from .series import list_regions, read_all_regions, read_series
+from .series import list_regions, read_all_regions, read_series, series_column
 from .table import read_table
 
 __all__ = [
+    "series_column",
     "MAX_BYTES",
     "MAX_ROWS",
     "DATE_NAMES",

@@ -58,6 +58,16 @@ def list_regions(source, *, region_column=None, name=None):
     return _regions(frame, col, label)
 
 
+def series_column(source, *, region_column=None, name=None):
+    """The column that names the series (region) of a long-format file, or None.
+
+    ``region_column`` is checked when given; otherwise the column is found
+    by name as in :func:`list_regions`.
+    """
+    frame, label = read_table(source, name=name)
+    return _region_column(frame, label, region_column)
+
+
 def read_series(source, *, date_column=None, count_column=None, region_column=None,
                 region=None, interval=None, name=None):
     """Read one count series from a file.
