@@ -19,6 +19,7 @@ from plotly.offline import get_plotlyjs
 from .. import wording
 from ..version import CODE_VERSION
 from ..web import figures as F
+from ..web import words as W
 from ..web.presenting import label_projection
 from .content import (NOT_CONVERGED_BOX, about_lines, cautions_of, hedged_summary, reportable, result_view,
                       warnings_of,
@@ -28,7 +29,7 @@ from .content import (NOT_CONVERGED_BOX, about_lines, cautions_of, hedged_summar
 CSP = ("default-src 'none'; script-src 'unsafe-inline' 'unsafe-eval'; style-src 'unsafe-inline'; "
        "img-src data: blob:; font-src data:; connect-src 'none'; base-uri 'none'; form-action 'none'")
 FIGURE_CONFIG = {"displaylogo": False, "responsive": True,
-                 "modeBarButtonsToRemove": ["select2d", "lasso2d", "sendDataToCloud"]}
+                 "modeBarButtonsToRemove": ["select2d", "lasso2d", "sendDataToCloud", "sendChartToCloud"]}
 
 STYLE = """
 :root { --ink:#15202b; --muted:#3d4852; --line:#c9d1d9; --accent:#0b5394; }
@@ -56,6 +57,10 @@ h2 { font-size: 21px; margin: 28px 0 8px; border-bottom: 1px solid var(--line); 
 .stat .detail { font-size: 14px; color: var(--muted); }
 .summary { font-size: 19px; margin: 10px 0; }
 .figure { margin: 6px 0 0; }
+:focus-visible { outline: 3px solid #b35900; outline-offset: 2px; }
+.js-plotly-plot .plotly .modebar:focus-within { opacity: 1 !important; }
+.in-words { font-size: 15px; margin: 4px 0 10px; }
+.in-words > summary { cursor: pointer; color: var(--accent); font-weight: 600; }
 table { border-collapse: collapse; width: 100%; font-size: 14px; margin: 6px 0; }
 th, td { text-align: left; padding: 4px 8px; border-bottom: 1px solid var(--line); vertical-align: top; }
 th { font-weight: 700; background: #f3f5f7; }
@@ -113,15 +118,24 @@ def _headline(view):
             f'<div class="stats">{cards}</div></section>')
 
 
+def _in_words(key, lines):
+    """A chart's text alternative: a fold under the figure, the same words as the dashboard's."""
+    items = "".join(f"<li>{_e(line)}</li>" for line in lines)
+    return (f'<figcaption><details class="in-words"><summary>{_e(W.TITLES[key])}</summary>'
+            f'<ul>{items}</ul></details></figcaption>')
+
+
 def _charts(result, view):
     sd = series_dict(result)
     main = label_projection(F.main_figure(sd, view), view)
     rates = F.rates_figure(view)
     return (f'<section id="main-chart"><h2>Counts, fitted trend and change dates</h2>'
             f'<p>The shaded period at the right shows what follows if the current trend continues; '
-            f'it is not a forecast.</p><div class="figure">{_figure_div(main, "report-main")}</div></section>'
+            f'it is not a forecast.</p><figure class="figure">{_figure_div(main, "report-main")}'
+            f'{_in_words("main", W.main_words(sd, view))}</figure></section>'
             f'<section id="rates-chart"><h2>Growth rate by segment</h2>'
-            f'<div class="figure">{_figure_div(rates, "report-rates")}</div></section>')
+            f'<figure class="figure">{_figure_div(rates, "report-rates")}'
+            f'{_in_words("rates", W.rates_words(view))}</figure></section>')
 
 
 def _fmt(v, fmt):

@@ -24,6 +24,7 @@ from ..reports.content import (BRIEF_CAUTION, about_lines, assumptions_from_opti
                                title_text)
 from ..store import FINISHED, valid_run_id
 from . import figures as F
+from . import words as W
 from .context import services, store_guarded
 from .pages import NO_SUCH_RUN, message_page
 from .presenting import BRIEF_NOTE, BRIEF_RATES_SCALE, label_projection, large_main, large_rates, type_scale
@@ -48,11 +49,13 @@ MAIN_BOX = "brief-main"
 MAIN = "brief-main-chart"
 RATES = "brief-rates-chart"
 FOOTER = "brief-footer"
+MAIN_WORDS = "brief-main-words"  # the charts in words (read by screen readers; app.web.words)
+RATES_WORDS = "brief-rates-words"
 
 OUTPUTS = (
     (ROOT, "className"), (TITLE, "children"), (BADGE, "children"), (BADGE, "className"), (STATUS, "children"),
     (WARNINGS, "children"), (HEADLINE, "children"), (HEADLINE, "className"), (SUMMARY, "children"), (MAIN, "figure"), (RATES, "figure"),
-    (FOOTER, "children"), (POLL, "disabled"), (DRAWN, "data"),
+    (FOOTER, "children"), (POLL, "disabled"), (DRAWN, "data"), (MAIN_WORDS, "children"), (RATES_WORDS, "children"),
 )
 MAIN_CONFIG = {"displayModeBar": False, "displaylogo": False, "scrollZoom": False, "responsive": True}
 RATES_CONFIG = {"displayModeBar": False, "displaylogo": False}
@@ -84,15 +87,21 @@ def layout():
             html.Div(id=WARNINGS, className="brief-warning-box", **{"aria-live": "polite"}),
             html.Div(id=HEADLINE, className="brief-headline"),
             html.P(id=SUMMARY, className="brief-summary"),
-            html.Div(id=MAIN_BOX, className="brief-main", children=[
+            html.Figure(id=MAIN_BOX, className="brief-main", children=[
                 dcc.Graph(id=MAIN, figure=F.empty_figure(""), config=MAIN_CONFIG, responsive=True,
                           style={"height": "100%", "width": "100%"}),
+                html.Figcaption(className="visually-hidden", children=[
+                    html.Span(W.TITLES["main"]), html.Ul(id=MAIN_WORDS)]),
             ]),
             html.P(BRIEF_CAUTION, className="brief-caution-line"),
         ]),
         html.Section(className="brief-more", children=[
             html.H2("Growth rate by segment", className="brief-h2"),
-            dcc.Graph(id=RATES, figure=F.empty_figure(""), config=RATES_CONFIG, className="brief-rates"),
+            html.Figure(className="brief-figure", children=[
+                dcc.Graph(id=RATES, figure=F.empty_figure(""), config=RATES_CONFIG, className="brief-rates"),
+                html.Figcaption(className="visually-hidden", children=[
+                    html.Span(W.TITLES["rates"]), html.Ul(id=RATES_WORDS)]),
+            ]),
         ]),
         html.Footer(id=FOOTER, className="brief-footer"),
         html.Div(className="brief-brand", children="Bendline briefing view"),
@@ -195,6 +204,8 @@ def content(record, view, series, *, result=None, scale=1.0):
         (FOOTER, "children"): footer(cautions, assumptions, about_lines(end=end, run_id=record["id"], seed=seed,
                                                                        gi=gi)),
         (POLL, "disabled"): not live,
+        (MAIN_WORDS, "children"): [html.Li(t) for t in W.main_words(sd, view)],
+        (RATES_WORDS, "children"): [html.Li(t) for t in W.rates_words(view)],
     }
 
 
@@ -208,6 +219,7 @@ def missing_content():
         (HEADLINE, "children"): [], (HEADLINE, "className"): "brief-headline", (SUMMARY, "children"): "",
         (MAIN, "figure"): empty, (RATES, "figure"): empty,
         (FOOTER, "children"): footer(cautions_of(None), [], []), (POLL, "disabled"): True,
+        (MAIN_WORDS, "children"): [], (RATES_WORDS, "children"): [],
     }
 
 

@@ -28,21 +28,32 @@ def control_id(name):
     return name.replace("_", "-")
 
 
+def legend_id(cid):
+    """Id of the legend naming a group of radio buttons (assets/a11y.js names the group by it)."""
+    return f"{cid}-legend"
+
+
 def control(option, interval_days=1):
-    """One labelled control (a div holding the label, the input and its hint)."""
+    """One labelled control (a div holding the label, the input and its hint).
+
+    Every control has a name a screen reader reads: a ``<label for=id>`` for a
+    field, the legend of its fieldset for a group of radio buttons (Dash's
+    RadioItems markup is repaired into a named radiogroup by assets/a11y.js),
+    the option's label beside a checkbox.
+    """
     cid = control_id(option.name)
     label = label_for(option, interval_days)
     hint = f"blank: {option.default_text}" if option.default is None and option.default_text else ""
     if option.kind == "choice":
         return html.Fieldset(className="field radio-field", children=[
-            html.Legend(label, className="field-label"),
+            html.Legend(label, className="field-label", id=legend_id(cid)),
             dcc.RadioItems(id=cid, value=option.default, className="radio",
                            options=[{"label": f" {text}", "value": v}
                                     for v, text in zip(option.choices, option.choice_labels)]),
         ])
     if option.kind == "auto_bool":
         return html.Fieldset(className="field radio-field", children=[
-            html.Legend(label, className="field-label"),
+            html.Legend(label, className="field-label", id=legend_id(cid)),
             dcc.RadioItems(id=cid, value="auto", className="radio",
                            options=[{"label": f" {text}", "value": v} for v, text in WEEKDAY_CHOICES]),
         ])

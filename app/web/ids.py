@@ -23,6 +23,8 @@ DATA_ERROR = "data-error"
 ADD_CHANGE = "add-change-date"
 CHANGE_LIST = "change-date-list"
 CHANGE_SPREAD = "change-spread"  # pattern-matching: {"type": CHANGE_SPREAD, "index": i}
+CHANGE_DATE = "change-date"  # pattern-matching: the date field of change date i (YYYY-MM-DD)
+CHANGE_ERROR = "change-date-error"  # a typed date that could not be used, in words
 CHANGE_REMOVE = "change-remove"  # pattern-matching
 SEGMENTS_NOTE = "segments-note"
 COMPARE = "compare-segments"  # "How many segments?"
@@ -53,6 +55,8 @@ STYLE = "display-style"
 SCALE = "display-scale"
 
 # panels
+RESULTS = "results"  # the results column (a skip link's target)
+ANNOUNCER = "status-announcer"  # the live region a screen reader announces: queued, running, the verdict
 HEADLINE = "headline"
 SUMMARY = "summary-sentence"
 WARNINGS = "warning-list"

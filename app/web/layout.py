@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dash import dash_table, dcc, html
+from dash import dcc, html
 
 from bendline.inference.result import CAUTIONS
 
@@ -10,6 +10,7 @@ from . import ids
 from .controls import controls
 from .downloads import EXPORT_HINT, EXPORT_IDS, EXPORT_ROW, EXPORTS
 from .figures import empty_figure
+from .words import TITLES
 
 #: Poll period (ms) of the run panels while a run streams (app.web.callbacks.panels).
 POLL_MS = 300
@@ -17,14 +18,42 @@ POLL_MS = 300
 GRAPH_CONFIG = {
     "displaylogo": False,
     "edits": {"shapePosition": True},
-    "modeBarButtonsToRemove": ["select2d", "lasso2d", "autoScale2d"],
+    "modeBarButtonsToRemove": ["select2d", "lasso2d", "autoScale2d", "sendDataToCloud", "sendChartToCloud"],
     "toImageButtonOptions": {"format": "png", "scale": 2},
 }
-PLAIN_CONFIG = {"displaylogo": False, "modeBarButtonsToRemove": ["select2d", "lasso2d"]}
+#: The side panels keep two modebar buttons (download, reset): every button is a Tab stop.
+PLAIN_CONFIG = {"displaylogo": False, "modeBarButtonsToRemove": [
+    "select2d", "lasso2d", "sendDataToCloud", "sendChartToCloud", "zoom2d", "pan2d", "zoomIn2d", "zoomOut2d", "autoScale2d"]}
+
+
+#: Keyboard shortcuts of Fit and Stop (assets/a11y.js), shown in their titles.
+FIT_KEYS = "Alt+Shift+F"
+STOP_KEYS = "Alt+Shift+S"
+#: The charts' "in words" folds: (graph id, words key of app.web.words.TITLES).
+CHART_WORDS = ((ids.MAIN, "main"), (ids.CHANGE_HIST, "hist"), (ids.RATES, "rates"), (ids.TRACE, "trace"),
+               (ids.WEEKDAY_FIG, "weekday"), (ids.RESIDUALS, "residuals"))
+
+
+def words_id(graph_id):
+    """Id of the list holding a chart's text alternative."""
+    return f"{graph_id}-words"
+
+
+def chart(graph, key):
+    """A chart with its text alternative: a fold, "... in words", read by keyboard and screen reader."""
+    return html.Figure(className="chart", children=[
+        graph,
+        html.Details(className="in-words", children=[
+            html.Summary(TITLES[key]),
+            html.Ul(id=words_id(graph.id), className="words"),
+        ]),
+    ])
 
 
 def _field(label, component, hint=None, id_=None):
-    children = [html.Label(label, className="field-label"), component]
+    target = getattr(component, "id", None)
+    children = [html.Label(label, className="field-label", htmlFor=target if isinstance(target, str) else None),
+                component]
     if id_:
         children.append(html.Div(hint or "", className="field-hint", id=id_))
     elif hint:
@@ -40,6 +69,8 @@ def _number(id_, value, *, min_=None, max_=None, step=None, width="6em"):
 def data_section(samples):
     return html.Details(open=True, className="section", children=[
         html.Summary("1. Data"),
+        html.Label("Series file (CSV: a date column and a count column)", htmlFor=ids.UPLOAD,
+                   className="field-label"),
         dcc.Upload(
             id=ids.UPLOAD,
             children=html.Div(["Drop a CSV file here, or ", html.Span("choose a file", className="link")]),
@@ -61,10 +92,11 @@ def data_section(samples):
 def changepoint_section():
     return html.Details(open=True, className="section", children=[
         html.Summary("2. Tentative change dates"),
-        html.P("Click the chart to add a change date, or use the button; drag a line to move it. "
-               "Each line centres the prior on that change date; its spread is the prior's "
-               "standard deviation in days.", className="help"),
+        html.P("Add a change date with the button, then type its date (YYYY-MM-DD) and spread; or click the "
+               "chart to add one and drag a line to move it. Each line centres the prior on that change date; "
+               "its spread is the prior's standard deviation in days.", className="help"),
         html.Button("Add change date", id=ids.ADD_CHANGE, className="btn"),
+        html.Div(id=ids.CHANGE_ERROR, className="error", role="alert"),
         html.Div(id=ids.CHANGE_LIST, className="change-list"),
         html.Div(className="field", children=[
             html.Label("Segments", htmlFor=ids.SEGMENTS, className="field-label"),
@@ -117,14 +149,17 @@ def export_section():
 def run_section():
     return html.Div(className="section run-section", children=[
         html.Div(className="buttons", children=[
-            html.Button("Fit", id=ids.FIT, className="btn primary", n_clicks=0),
-            html.Button("Stop", id=ids.STOP, className="btn", n_clicks=0, disabled=True),
+            html.Button("Fit", id=ids.FIT, className="btn primary", n_clicks=0,
+                        title=f"Fit the model to the series ({FIT_KEYS})", **{"aria-keyshortcuts": FIT_KEYS}),
+            html.Button("Stop", id=ids.STOP, className="btn", n_clicks=0, disabled=True,
+                        title=f"Stop the running fit, keeping its draws ({STOP_KEYS})",
+                        **{"aria-keyshortcuts": STOP_KEYS}),
             html.A("Briefing view", id=ids.BRIEF_LINK, className="btn link-btn disabled", href="#",
                    target="_blank"),
         ]),
         export_section(),
         html.Div(id=ids.FIT_ERROR, className="error", role="alert"),
-        html.Div(id=ids.PROGRESS, className="progress", **{"aria-live": "polite"}),
+        html.Div(id=ids.PROGRESS, className="progress"),
         html.Details(open=True, className="section", children=[
             html.Summary("Runs"),
             html.Button("Refresh", id=ids.REFRESH_RUNS, className="btn small", n_clicks=0),
@@ -134,64 +169,63 @@ def run_section():
 
 
 def results_area():
-    return html.Div(className="results", children=[
-        html.Div(id=ids.STATUS_BANNER, className="banner", role="status", **{"aria-live": "polite"}),
-        html.Ul(id=ids.WARNINGS, className="warning-list", **{"aria-live": "polite"}),
+    return html.Div(id=ids.RESULTS, className="results", tabIndex="-1", children=[
+        # the one live region of the run's status: what a screen reader announces (queued, running, then
+        # the verdict); the banner, progress line and warnings below change with every snapshot and are
+        # read on demand, not announced
+        html.Div(id=ids.ANNOUNCER, className="visually-hidden", role="status",
+                 **{"aria-live": "polite", "aria-atomic": "true"}),
+        html.Div(id=ids.STATUS_BANNER, className="banner"),
+        html.Ul(id=ids.WARNINGS, className="warning-list", **{"aria-label": "Warnings"}),
         html.Div(id=ids.HEADLINE, className="headline"),
         html.P(id=ids.SUMMARY, className="summary-sentence"),
         html.Div(className="toolbar", children=[
-            dcc.RadioItems(id=ids.STYLE, value="bars", inline=True, className="radio",
-                           options=[{"label": " Bars", "value": "bars"}, {"label": " Points", "value": "points"}]),
-            dcc.RadioItems(id=ids.SCALE, value="linear", inline=True, className="radio",
-                           options=[{"label": " Linear", "value": "linear"}, {"label": " Log", "value": "log"}]),
+            html.Fieldset(className="inline-field", children=[
+                html.Legend("Counts as", className="inline-legend"),
+                dcc.RadioItems(id=ids.STYLE, value="bars", inline=True, className="radio",
+                               options=[{"label": " Bars", "value": "bars"}, {"label": " Points", "value": "points"}]),
+            ]),
+            html.Fieldset(className="inline-field", children=[
+                html.Legend("Scale", className="inline-legend"),
+                dcc.RadioItems(id=ids.SCALE, value="linear", inline=True, className="radio",
+                               options=[{"label": " Linear", "value": "linear"}, {"label": " Log", "value": "log"}]),
+            ]),
         ]),
-        dcc.Graph(id=ids.MAIN, figure=empty_figure("Load a series to begin."), config=GRAPH_CONFIG,
-                  className="graph main-graph"),
-        dcc.Graph(id=ids.CHANGE_HIST, figure=empty_figure("Change-date distributions appear while the fit runs."),
-                  config=PLAIN_CONFIG, className="graph hist-graph"),
+        chart(dcc.Graph(id=ids.MAIN, figure=empty_figure("Load a series to begin."), config=GRAPH_CONFIG,
+                        className="graph main-graph"), "main"),
+        chart(dcc.Graph(id=ids.CHANGE_HIST,
+                        figure=empty_figure("Change-date distributions appear while the fit runs."),
+                        config=PLAIN_CONFIG, className="graph hist-graph"), "hist"),
         html.Div(className="row", children=[
             html.Div(className="col", children=[
                 html.H3("Growth rate by segment"),
-                dcc.Graph(id=ids.RATES, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG, className="graph"),
+                chart(dcc.Graph(id=ids.RATES, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG,
+                                className="graph"), "rates"),
             ]),
             html.Div(className="col", children=[
                 html.H3("Convergence"),
                 html.Div(id=ids.DIAG_SUMMARY, className="diag-summary"),
-                dash_table.DataTable(
-                    id=ids.DIAG_TABLE,
-                    columns=[{"name": "Quantity", "id": "parameter"}, {"name": "R-hat", "id": "rhat"},
-                             {"name": "Bulk ESS", "id": "ess_bulk"}, {"name": "Tail ESS", "id": "ess_tail"},
-                             {"name": "Status", "id": "status"}],
-                    data=[], page_size=12, style_as_list_view=True,
-                    style_cell={"fontSize": "13px", "padding": "3px 6px", "textAlign": "left",
-                                "whiteSpace": "normal", "height": "auto"},
-                    style_cell_conditional=[{"if": {"column_id": "status"}, "width": "40%"}],
-                    style_table={"overflowX": "auto"},
-                    style_header={"fontWeight": "600"},
-                    style_data_conditional=[
-                        {"if": {"filter_query": '{status} != "ok"'}, "color": "#A33A00", "fontWeight": "600"},
-                    ],
-                ),
+                html.Div(id=ids.DIAG_TABLE, className="diag-table-box"),
             ]),
         ]),
         html.Div(className="row", children=[
             html.Div(className="col", children=[
                 html.H3("Traces"),
-                dcc.Dropdown(id=ids.TRACE_PARAM, clearable=False, placeholder="quantity"),
-                dcc.Graph(id=ids.TRACE, figure=empty_figure("Traces appear once sampling starts."),
-                          config=PLAIN_CONFIG, className="graph"),
+                _field("Quantity shown", dcc.Dropdown(id=ids.TRACE_PARAM, clearable=False, placeholder="quantity")),
+                chart(dcc.Graph(id=ids.TRACE, figure=empty_figure("Traces appear once sampling starts."),
+                                config=PLAIN_CONFIG, className="graph"), "trace"),
             ]),
             html.Div(className="col", children=[
                 html.H3("Day-of-week effect"),
-                dcc.Graph(id=ids.WEEKDAY_FIG, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG,
-                          className="graph"),
+                chart(dcc.Graph(id=ids.WEEKDAY_FIG, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG,
+                                className="graph"), "weekday"),
             ]),
         ]),
         html.Div(className="row", children=[
             html.Div(className="col wide", children=[
                 html.H3("Model check: posterior predictive residuals"),
-                dcc.Graph(id=ids.RESIDUALS, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG,
-                          className="graph"),
+                chart(dcc.Graph(id=ids.RESIDUALS, figure=empty_figure("No fit yet."), config=PLAIN_CONFIG,
+                                className="graph"), "residuals"),
             ]),
         ]),
         html.Footer(className="cautions", children=[html.P(c) for c in CAUTIONS]),
@@ -209,11 +243,15 @@ def page(samples, series_key=None, team_user=None):
     team_user : str, optional
         Signed-in user in team mode (shown with a sign-out link).
     """
-    header_right = []
+    header_right = [html.A("Boards: many series at once", href="/board/", className="link")]
     if team_user:
-        header_right = [html.Span(f"Signed in as {team_user}", className="user"),
-                        html.A("Sign out", href="/logout", className="link")]
+        header_right += [html.Span(f"Signed in as {team_user}", className="user"),
+                         html.A("Sign out", href="/logout", className="link")]
     return html.Div(className="page", children=[
+        html.Nav(className="skip-links", **{"aria-label": "Skip links"}, children=[
+            html.A("Skip to the Fit button", href=f"#{ids.FIT}", className="skip-link"),
+            html.A("Skip to the results", href=f"#{ids.RESULTS}", className="skip-link"),
+        ]),
         dcc.Location(id=ids.URL, refresh=False),
         dcc.Store(id=ids.SERIES_KEY, data=series_key),
         dcc.Store(id=ids.CHANGEPOINTS, data=[]),

@@ -1,4 +1,4 @@
-"""Tentative change dates: add (button or chart click), drag, set spread, remove."""
+"""Tentative change dates: add (button or chart click), move (type a date, or drag), set spread, remove."""
 
 from __future__ import annotations
 
@@ -88,23 +88,79 @@ def edit(add_clicks, click, relayout, spreads, removes, cps, series_key):
     return cps
 
 
+DATE_TEXT = re.compile(r"^\s*(\d{4}-\d{2}-\d{2})\s*$")
+
+
+def typed_day(series, text):
+    """(day offset, None) of a date typed into a change date's field, or (None, message in words)."""
+    first, last = str(series.start), str(series.end)
+    m = DATE_TEXT.match(str(text or ""))
+    try:
+        when = np.datetime64(m.group(1), "D") if m else None
+    except ValueError:
+        when = None
+    if when is None:
+        return None, f"{text!r} is not a date; write it as YYYY-MM-DD, from {first} to {last}."
+    if when < series.start or when > series.end:
+        return None, f"{m.group(1)} is outside the series; choose a date from {first} to {last}."
+    return float((when - series.start) / np.timedelta64(1, "D")), None
+
+
+def edit_typed(add_clicks, click, relayout, spreads, removes, dates, cps, series_key):
+    """:func:`edit`, plus a date typed into a change date's field: (change dates, message)."""
+    trig = ctx.triggered_id
+    if isinstance(trig, dict) and trig.get("type") == ids.CHANGE_DATE:
+        series, _ = get_series(services().store, series_key)
+        i = trig["index"]
+        cps = [dict(c) for c in (cps or [])]
+        if series is None or i >= len(cps):
+            return no_update, no_update
+        day, message = typed_day(series, ctx.triggered[0]["value"])
+        if message:
+            return no_update, f"Change date {i + 1}: {message}"
+        if day == cps[i]["day"]:
+            return no_update, ""  # the fields were re-drawn, nothing changed
+        cps[i]["day"] = day
+        cps.sort(key=lambda c: c["day"])
+        return cps, ""
+    out = edit(add_clicks, click, relayout, spreads, removes, cps, series_key)
+    return out, (no_update if out is no_update else "")
+
+
 def render_list(cps, series_key, segments):
-    """The change-date rows and the segment count they imply."""
+    """The change-date rows and the segment count they imply.
+
+    Each row is a date field (type a date to move it), its spread and a
+    Remove button, each labelled with the change date's number, so the list
+    works from the keyboard; the chart's click and drag are the mouse's
+    shortcut to the same edits.
+    """
     series, _ = get_series(services().store, series_key)
     cps = cps or []
     if series is None:
         return [], no_update, False, ""
     rows = []
     for i, c in enumerate(cps):
-        rows.append(html.Div(className="change-row", children=[
-            html.Span(f"{i + 1}.", className="change-num"),
-            html.Span(date_of(series, c["day"]), className="change-date"),
-            html.Label(["± ", dcc.Input(id={"type": ids.CHANGE_SPREAD, "index": i}, type="number",
-                                        value=c["spread_days"], min=0.5, max=365, step=0.5, debounce=True,
-                                        className="num", style={"width": "4.5em"}),
-                        " days"]),
+        n = i + 1
+        # each field inside its label (the fields' ids are pattern-matching dicts)
+        rows.append(html.Div(className="change-row", role="group", **{"aria-label": f"Change date {n}"}, children=[
+            html.Span(f"{n}.", className="change-num", **{"aria-hidden": "true"}),
+            html.Label(className="change-field", children=[
+                html.Span(f"Change date {n} (YYYY-MM-DD)", className="visually-hidden"),
+                dcc.Input(id={"type": ids.CHANGE_DATE, "index": i}, type="text", value=date_of(series, c["day"]),
+                          debounce=True, className="text change-date", style={"width": "7.5em"},
+                          placeholder="YYYY-MM-DD"),
+            ]),
+            html.Label(className="change-field", children=[
+                html.Span("±", **{"aria-hidden": "true"}),
+                html.Span(f"Spread of change date {n} in days", className="visually-hidden"),
+                dcc.Input(id={"type": ids.CHANGE_SPREAD, "index": i}, type="number",
+                          value=c["spread_days"], min=0.5, max=365, step=0.5, debounce=True,
+                          className="num", style={"width": "4.5em"}),
+                html.Span("days", **{"aria-hidden": "true"}),
+            ]),
             html.Button("Remove", id={"type": ids.CHANGE_REMOVE, "index": i}, className="btn small",
-                        n_clicks=0),
+                        n_clicks=0, **{"aria-label": f"Remove change date {n}"}),
         ]))
     if cps:
         return rows, len(cps) + 1, True, (f"{len(cps) + 1} segments: set by the {len(cps)} change "
@@ -115,15 +171,17 @@ def render_list(cps, series_key, segments):
 def register(app):
     app.callback(
         Output(ids.CHANGEPOINTS, "data"),
+        Output(ids.CHANGE_ERROR, "children"),
         Input(ids.ADD_CHANGE, "n_clicks"),
         Input(ids.MAIN, "clickData"),
         Input(ids.MAIN, "relayoutData"),
         Input({"type": ids.CHANGE_SPREAD, "index": ALL}, "value"),
         Input({"type": ids.CHANGE_REMOVE, "index": ALL}, "n_clicks"),
+        Input({"type": ids.CHANGE_DATE, "index": ALL}, "value"),
         State(ids.CHANGEPOINTS, "data"),
         State(ids.SERIES_KEY, "data"),
         prevent_initial_call=True,
-    )(store_guarded(edit, 1, {}))
+    )(store_guarded(edit_typed, 2, {1: lambda t: t}))
     app.callback(
         Output(ids.CHANGE_LIST, "children"),
         Output(ids.SEGMENTS, "value", allow_duplicate=True),

@@ -31,7 +31,7 @@ PANEL_OUTPUTS = {
     "main": (ids.MAIN, "figure"), "hist": (ids.CHANGE_HIST, "figure"), "rates": (ids.RATES, "figure"),
     "trace": (ids.TRACE, "figure"), "trace_options": (ids.TRACE_PARAM, "options"),
     "trace_value": (ids.TRACE_PARAM, "value"), "weekday": (ids.WEEKDAY_FIG, "figure"),
-    "residuals": (ids.RESIDUALS, "figure"), "diag_rows": (ids.DIAG_TABLE, "data"),
+    "residuals": (ids.RESIDUALS, "figure"), "diag_rows": (ids.DIAG_TABLE, "children"),
     "diag_summary": (ids.DIAG_SUMMARY, "children"), "headline": (ids.HEADLINE, "children"),
     "summary": (ids.SUMMARY, "children"), "warnings": (ids.WARNINGS, "children"),
     "progress": (ids.PROGRESS, "children"), "banner": (ids.STATUS_BANNER, "children"),
@@ -154,6 +154,38 @@ def words_of(sd, snap, cps=None, trace_param=None, only=None):
     return {f"words_{k}": _items(make()) for k, make in makers.items() if only is None or k in only}
 
 
+DIAG_COLUMNS = (("parameter", "Quantity"), ("rhat", "R-hat"), ("ess_bulk", "Bulk ESS"), ("ess_tail", "Tail ESS"),
+                ("status", "Status"))
+
+
+def _cell(key, value):
+    if value is None:
+        return "–"
+    if key == "rhat" and isinstance(value, (int, float)):
+        return f"{value:.3f}"
+    if key.startswith("ess") and isinstance(value, (int, float)):
+        return f"{value:,.0f}"
+    return str(value)
+
+
+def diagnostics_table(rows):
+    """The convergence table: a plain HTML table (headers in scope, every row shown).
+
+    A plain table, not a DataTable: the DataTable's hidden clipboard input
+    held the Tab key (a keyboard trap) and its paging buttons had no names. A
+    row whose status is not "ok" says why in its Status cell; its colour only
+    repeats that.
+    """
+    head = html.Thead(html.Tr([html.Th(label, scope="col") for _key, label in DIAG_COLUMNS]))
+    body = [html.Tr([html.Td(_cell(key, r.get(key)), className="num" if key in ("rhat", "ess_bulk", "ess_tail")
+                             else None) for key, _label in DIAG_COLUMNS],
+                    className=None if r.get("status") == "ok" else "problem") for r in rows]
+    if not body:
+        body = [html.Tr(html.Td("No convergence check yet.", colSpan=len(DIAG_COLUMNS)))]
+    return html.Table(className="diag-table", children=[
+        html.Caption("Convergence of each quantity", className="visually-hidden"), head, html.Tbody(body)])
+
+
 def headline_children(snapshot):
     out = []
     for label, value, detail in wording.headline_stats(snapshot):
@@ -243,7 +275,7 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, strip=
         return _as_list({
             "main": blank, "hist": F.empty_figure(""), "rates": F.empty_figure("No fit yet."),
             "trace": F.empty_figure(""), "trace_options": [], "trace_value": None, "weekday": F.empty_figure(""),
-            "residuals": F.empty_figure(""), "diag_rows": [], "diag_summary": "", "headline": [], "summary": "",
+            "residuals": F.empty_figure(""), "diag_rows": diagnostics_table([]), "diag_summary": "", "headline": [], "summary": "",
             "warnings": [], "progress": "", "banner": "", "banner_class": "", "state": None, "poll_off": True,
             "stop_off": True, "brief_href": "#", "brief_class": "btn link-btn disabled", "poll_ms": POLL_MS,
             "announce": "", **words_of(None, None)})
@@ -268,7 +300,7 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, strip=
         announce=announcement(rec, snap), **words_of(sd, snap, cps, trace_param),
         main=main, hist=hist, rates=F.rates_figure(snap, highlight_segment=highlight), trace=trace,
         trace_options=options, trace_value=trace_param, weekday=F.weekday_figure(snap), residuals=resid,
-        diag_rows=F.diagnostics_rows(snap), diag_summary=F.diagnostics_summary(snap) if snap else "",
+        diag_rows=diagnostics_table(F.diagnostics_rows(snap)), diag_summary=F.diagnostics_summary(snap) if snap else "",
         headline=headline_children(snap), summary=summary_children(rec, snap), warnings=warning_children(snap),
         progress=wording.progress_line(rec, snap), banner=banner, banner_class=f"banner {banner_cls}",
         state=state, poll_ms=FIRST_POLL_MS if rec is not None and not controls["poll_off"] and not state["banded"]
@@ -433,7 +465,7 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param, strip=None)
         else:
             fig = F.residual_figure(snap)
             out["residuals"], counts["resid"] = fig, len(fig.data)
-        out["diag_rows"] = F.diagnostics_rows(snap)
+        out["diag_rows"] = diagnostics_table(F.diagnostics_rows(snap))
         out["diag_summary"] = F.diagnostics_summary(snap)
         out.update(words_of(sd, snap, trace_param=param, only=("trace", "residuals")))
     else:

@@ -30,6 +30,13 @@ RESIDUAL_STATUS_ANNOTATION = 0
 
 # ------------------------------------------------------------------ weekday
 
+def weekday_text(day):
+    """'Monday: counts × 1.12 (90% interval 1.05 to 1.19)': one day's factor, as hovered and read aloud."""
+    name = str(day.get("day"))
+    m, a, b = num(day.get("median")), num(day.get("q05")), num(day.get("q95"))
+    return f"{name}: counts × {m:.2f} (90% interval {a:.2f} to {b:.2f})" if None not in (m, a, b) else name
+
+
 def weekday_figure(snapshot):
     """Day-of-week reporting factors with 90% intervals.
 
@@ -59,8 +66,7 @@ def weekday_figure(snapshot):
     hi = [num(d.get("q95")) for d in days]
     up = [None if h is None or m is None else h - m for h, m in zip(hi, med)]
     down = [None if m is None or low is None else m - low for m, low in zip(med, lo)]
-    hover = [f"{n}: counts × {m:.2f} (90% interval {a:.2f} to {b:.2f})"
-             if None not in (m, a, b) else n for n, m, a, b in zip(names, med, lo, hi)]
+    hover = [weekday_text(d) for d in days]
     trace = go.Scatter(
         name="day-of-week factor", x=short, y=med, mode="markers",
         marker={"color": th.BLUE, "size": 13, "symbol": "square"},
@@ -96,7 +102,8 @@ def _checks_interval(snapshot, dates):
     return 1
 
 
-def _residual_title(checks):
+def residual_title(checks):
+    """The predictive check's headline: how much of the data its 90% intervals cover."""
     cov = num(checks.get("coverage_90"))
     if cov is None:
         return "90% predictive intervals: coverage not available"
@@ -113,7 +120,7 @@ def _residual_dynamic(snapshot):
     if by_day:
         dyn[1] = {"x": [str(d.get("day"))[:3] for d in by_day], "y": [num(d.get("mean")) for d in by_day],
                   "customdata": [[str(d.get("day")), d.get("n")] for d in by_day]}
-    return dyn, _residual_title(checks)
+    return dyn, residual_title(checks)
 
 
 def _residual_badge(snapshot):

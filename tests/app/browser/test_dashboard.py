@@ -29,6 +29,16 @@ def wait_text(page, selector, pattern, timeout=60.0):
     raise AssertionError(f"{selector} never matched {pattern!r}; last text: {text!r}")
 
 
+def change_dates_text(page, timeout=60.0):
+    """The tentative change dates as their date fields show them (waits until there is one)."""
+    deadline = time.time() + timeout
+    while True:
+        text = " ".join(page.eval_on_selector_all("#change-date-list .change-date input", "els => els.map(e => e.value)"))
+        if re.search(r"\d{4}-\d\d-\d\d", text) or time.time() > deadline:
+            return text
+        time.sleep(0.2)
+
+
 def trend_points(page):
     data = graph_data(page) or []
     band = [t for t in data if t["name"] and "trend: 90% interval" in t["name"]]
@@ -43,8 +53,7 @@ def test_upload_add_drag_fit_watch_stop_reopen(server, page):
     assert "negative count" in page.inner_text("#data-notes")
     # add a tentative change date with the button, then drag its line
     page.click("#add-change-date")
-    wait_text(page, "#change-date-list", r"\d{4}-\d\d-\d\d")
-    before = page.inner_text("#change-date-list")
+    before = change_dates_text(page)
     first_date = re.search(r"\d{4}-\d\d-\d\d", before).group(0)
     page.wait_for_selector(".shapelayer path[data-index='0']", state="attached")
     time.sleep(1.0)
@@ -54,11 +63,11 @@ def test_upload_add_drag_fit_watch_stop_reopen(server, page):
     page.mouse.down()
     page.mouse.move(x - 60, y, steps=8)
     page.mouse.up()
-    after = wait_text(page, "#change-date-list", r"\d{4}-\d\d-\d\d")
+    after = change_dates_text(page)
     deadline = time.time() + 15
     while re.search(r"\d{4}-\d\d-\d\d", after).group(0) == first_date and time.time() < deadline:
         time.sleep(0.3)
-        after = page.inner_text("#change-date-list")
+        after = change_dates_text(page)
     moved = re.search(r"\d{4}-\d\d-\d\d", after).group(0)
     assert moved < first_date, (first_date, moved)  # dragged left: an earlier date, whole days
     assert page.input_value("#segments") == "2"
