@@ -183,6 +183,17 @@ class BoardService:
                     return self.store.update_run(board_id, releases=releases, status="running")
         return None
 
+    def board_of(self, run_id):
+        """(board id, series name, series hash) when ``run_id`` is a series' run in a board's latest release."""
+        rec = self.runs.get(run_id)
+        board = self.get(rec.get("parent")) if rec is not None and rec.get("parent") else None
+        if board is None or not board.get("releases"):
+            return None
+        for row in board["releases"][-1]["series"]:
+            if run_id in row.get("history", []):
+                return board["id"], row["name"], rec.get("series_hash")
+        return None
+
     def list(self, limit=200):
         return [r for r in self.store.list_runs(10_000) if r.get("kind") == "board"][:limit]
 

@@ -31,6 +31,8 @@ def fmt_pct(p, signed=True, digits=None):
         return "–"
     if digits is None:
         digits = 1 if abs(p) < 10 else 0
+    if round(p, digits) == 0:
+        p = 0.0  # no "−0.0%": a rate that rounds to zero has no sign
     text = f"{p:+.{digits}f}%" if signed else f"{abs(p):.{digits}f}%"
     return text.replace("-", "−")
 

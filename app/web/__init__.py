@@ -110,5 +110,8 @@ def create_app(services: AppServices, *, demo_sample=None, title="Bendline"):
     callbacks.register(app)
     register_downloads(server)
     app.brief_app = create_brief_app(server, services)  # kept for tests that walk its callbacks
+    from .board import create_board_app
+
+    app.board_app = create_board_app(server, services)
     security.close_catch_alls(server)
     return app

@@ -31,7 +31,7 @@ LOOPBACK = frozenset({"127.0.0.1", "localhost", "::1", "[::1]"})
 SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 API_WRITE_HEADER = "X-Bendline-Request"
 #: Dash's catch-all routes: the pages themselves are "/" and "/brief/<run id>"
-CATCH_ALL = frozenset({"/<path:path>", "/brief/<path:path>", "/brief/"})
+CATCH_ALL = frozenset({"/<path:path>", "/brief/<path:path>", "/brief/", "/board/<path:path>"})
 
 
 def _host_name(host_header):
@@ -103,11 +103,13 @@ def close_catch_alls(server):
     Called once every Dash app is on the server. The views are wrapped, not
     checked before the request, so a team server's sign-in still comes first.
     """
-    from .pages import message_page
+    from .pages import NO_SUCH_RUN, message_page
 
     def not_found(**_kwargs):
+        if request.path.startswith("/brief/"):  # a briefing view without a (well-formed) run id
+            return message_page("No such run", NO_SUCH_RUN, 404)
         return message_page("No such page", "There is no page at this address. The dashboard is at /, "
-                            "a run's briefing view at /brief/<run id>.", 404)
+                            "a run's briefing view at /brief/<run id>, boards at /board/.", 404)
 
     for rule in server.url_map.iter_rules():
         if rule.rule in CATCH_ALL:

@@ -7,6 +7,7 @@ on hand-made results whose answer is known.
 
 from __future__ import annotations
 
+import base64
 import csv
 import io
 import json
@@ -18,6 +19,7 @@ from bendline.app.boards import board_csv, board_view, ranked
 from .test_api import LONG, _assert_clean_error, make_app  # noqa: F401 - make_app is a fixture
 
 SPEC = {"by": "district", "segments": 2, "chains": 4, "draws": 100, "seed": 3}
+OPTIONS = {k: v for k, v in SPEC.items() if k != "by"}
 
 
 def _file(text, name="regions.csv"):
@@ -179,3 +181,67 @@ def test_unreportable_series_are_set_apart_and_the_csv_is_neutralised():
     table = list(csv.DictReader(io.StringIO(board_csv(view))))
     assert [r["series"] for r in table][0] == "Y"
     assert all(not r["series"].startswith("=") for r in table)  # OWASP CSV injection: neutralised
+
+
+def test_a_series_opened_from_the_board_and_refitted_becomes_its_current_run(tmp_path, regions_text):
+    """Open a board's series in the dashboard, change K, Fit: the board shows the new run and keeps the old one."""
+    from bendline.app.boards import BoardService
+    from bendline.app.executors import InlineExecutor
+    from bendline.app.runs import RunService
+    from bendline.app.store.disk import DiskRunStore
+    from bendline.app.web import create_app, ids
+    from bendline.app.web.callbacks import loading, running
+    from bendline.app.web.context import AppServices
+    from bendline.app.web.controls import NAMES, controls_from_public
+
+    from .test_callbacks import trigger
+
+    store = DiskRunStore(str(tmp_path / "store"))
+    runs = RunService(store, InlineExecutor(store))
+    app = create_app(AppServices(runs=runs, store=store))
+    with app.server.test_request_context("/"):
+        boards = BoardService(runs)
+        board = boards.create(regions_text.encode(), "regions.csv", "district", dict(OPTIONS, segments=1))
+        first = {r["name"]: r["run_id"] for r in board["releases"][0]["series"]}
+        trigger(f"{ids.REQUEST_RUN}.data", {"run": first["Orlund"]})
+        out = loading.load(None, None, None, {"run": first["Orlund"]}, None, None, None)
+        key, shown = out[0], out[2]
+        assert shown == first["Orlund"]
+        values = controls_from_public(dict(OPTIONS, segments=2))
+        _, new_id, err = running.fit(1, key, [], *[values[n] for n in NAMES], shown)
+        assert not err and new_id != shown
+        view = board_view(boards.get(board["id"]), runs)
+        rows = {r["series"]: r for r in view["releases"][-1]["rows"]}
+        assert rows["Orlund"]["run_id"] == new_id and rows["Harrowmere"]["run_id"] == first["Harrowmere"]
+        history = boards.get(board["id"])["releases"][-1]["series"]
+        assert next(r for r in history if r["name"] == "Orlund")["history"] == [first["Orlund"], new_id]
+        # a fit of another series opened from the same page is not the board's
+        other_csv = "date,count\n" + "".join(f"2026-01-{d:02d},{d}\n" for d in range(1, 29))
+        trigger(f"{ids.UPLOAD}.contents")
+        other = loading.load("data:text/csv;base64," + base64.b64encode(other_csv.encode()).decode(),
+                             None, None, None, "other.csv", key, new_id)
+        _, other_id, err = running.fit(1, other[0], [], *[values[n] for n in NAMES], new_id)
+        assert runs.get(other_id)["parent"] is None
+        assert board_view(boards.get(board["id"]), runs)["releases"][-1]["rows"][1]["run_id"] != other_id
+
+
+def test_the_board_pages_report_csv_and_briefing_view(make_app, regions_text):
+    client = make_app()
+    board = _post(client, "/api/v1/boards", regions_text, dict(SPEC, segments=1)).get_json()
+    bid = board["id"]
+    assert client.get(f"/board/{bid}").status_code == 200
+    assert client.get("/board/").status_code == 200
+    for bad in ("/board/0123456789abcdef", "/board/nothing", "/board/x/y", f"/board/{bid}x/table.csv",
+                "/brief/board/0123456789abcdef"):
+        assert client.get(bad).status_code == 404, bad
+    table = client.get(f"/board/{bid}/table.csv")
+    assert table.status_code == 200 and "attachment" in table.headers["Content-Disposition"]
+    rows = list(csv.DictReader(io.StringIO(table.get_data(as_text=True).lstrip("\ufeff"))))
+    assert sorted(r["series"] for r in rows) == ["Harrowmere", "Orlund", "Quillby", "Tamsey"]
+    report = client.get(f"/board/{bid}/report.html").get_data(as_text=True)
+    # self-contained: no script, nothing fetched from elsewhere; every chart has words
+    assert "<script" not in report and "http://" not in report.replace('xmlns="http://www.w3.org/2000/svg"', "")
+    assert "https://" not in report and report.count("<svg") == 4 and report.count('aria-label="Orlund:') == 1
+    assert "no substitute for epidemiological judgement" in report
+    brief = client.get(f"/brief/board/{bid}").get_data(as_text=True)
+    assert "Needs attention" in brief and "presenting" in brief and "http-equiv=\"refresh\"" not in brief

@@ -120,11 +120,11 @@ def test_change_date_edits(app):
 def test_fit_validates_and_names_the_control(app):
     with app.server.test_request_context("/"):
         key = _load_sample(app)
-        url, _, err = running.fit(1, key, [], *controls(segments=3, growth_prior_pct=20, gi_mean=5.0, chains=8, draws=100, seed=1))
+        url, _, err = running.fit(1, key, [], *controls(segments=3, growth_prior_pct=20, gi_mean=5.0, chains=8, draws=100, seed=1), None)
         assert url is no_update and err.startswith("Generation interval")
-        url, _, err = running.fit(1, key, [], *controls(segments=3, growth_prior_pct=20, chains=None, draws=100, seed=1))
+        url, _, err = running.fit(1, key, [], *controls(segments=3, growth_prior_pct=20, chains=None, draws=100, seed=1), None)
         assert "Chains" in err and "empty" in err
-        url, _, err = running.fit(1, None, [], *controls(segments=3, growth_prior_pct=20, chains=8, draws=100, seed=1))
+        url, _, err = running.fit(1, None, [], *controls(segments=3, growth_prior_pct=20, chains=8, draws=100, seed=1), None)
         assert err == "Load a series first."
 
 
@@ -132,7 +132,7 @@ def test_fit_submits_and_the_panels_render_the_run(app):
     with app.server.test_request_context("/"):
         key = _load_sample(app)
         cps = [{"day": 70.0, "spread_days": 10.0}, {"day": 170.0, "spread_days": 10.0}]
-        url, run_id, err = running.fit(1, key, cps, *controls(segments=3, growth_prior_pct=20, chains=4, draws=100, seed=2))
+        url, run_id, err = running.fit(1, key, cps, *controls(segments=3, growth_prior_pct=20, chains=4, draws=100, seed=2), None)
         assert err == "" and url == f"?run={run_id}"
         rec = app.server.config["BENDLINE"].runs.get(run_id)
         assert rec["options"]["segments"] == 3
@@ -150,7 +150,7 @@ def test_poll_sets_controls_and_trace_picker_only_when_they_change(app):
     # re-ran the run list, the export links and a full render each time.
     with app.server.test_request_context("/"):
         key = _load_sample(app)
-        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2))
+        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2), None)
         trigger(f"{ids.RUN_ID}.data")
         out = panels.render(key, [], "bars", "linear", None, run_id, None)
         state, param = out[ST], out[5]
@@ -173,7 +173,7 @@ def test_a_runs_first_band_is_sent_alone_and_the_other_panels_follow(app):
     # the browser draws one patched chart far sooner than seven new ones
     with app.server.test_request_context("/"):
         key = _load_sample(app)
-        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2))
+        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2), None)
         svc = app.server.config["BENDLINE"]
         svc.store.update_run(run_id, status="running")  # as if still sampling
         trigger(f"{ids.POLL}.n_intervals")
@@ -217,7 +217,7 @@ def test_a_new_run_on_blank_panels_patches_the_main_chart_only(app):
         trigger(f"{ids.SERIES_KEY}.data")
         blank = panels.render(key, [], "bars", "linear", None, None, None)
         assert blank[ST]["run"] is None and blank[ST]["series"] == key
-        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2))
+        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2), None)
         svc = app.server.config["BENDLINE"]
         svc.store.update_run(run_id, status="running")
         svc.store.put_snapshot(run_id, _load("snapshot_00_init"))  # no band yet
@@ -241,7 +241,7 @@ def test_an_empty_panel_is_redrawn_when_its_empty_state_changes(app):
         key = _load_sample(app)
         trigger(f"{ids.SERIES_KEY}.data")
         blank = panels.render(key, [], "bars", "linear", None, None, None)
-        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, weekday="off", growth_prior_pct=20, chains=4, draws=100, seed=2))
+        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, weekday="off", growth_prior_pct=20, chains=4, draws=100, seed=2), None)
         trigger(f"{ids.POLL}.n_intervals")
         out = panels.poll(1, run_id, dict(blank[ST], run=run_id, iteration=-1), key, [], None, None)
         assert out[6] is not no_update
@@ -268,7 +268,7 @@ def test_the_last_poll_redraws_panels_a_throttled_poll_left_provisional(app):
     # panels, and the next poll (status finished) must still draw them
     with app.server.test_request_context("/"):
         key = _load_sample(app)
-        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2))
+        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2), None)
         final = app.server.config["BENDLINE"].store.get_snapshot(run_id)
         streaming = dict(final, phase="sampling")
         seen = {"run": run_id, "iteration": final["iteration"], "phase": "done", "counts": {},

@@ -55,6 +55,7 @@ def test_no_callback_answers_a_crafted_value_with_an_error(tmp_path, capsys):
     client.get("/")  # the layout is built on the first page load
     answers = _walk(client, "/", app.callback_map)
     answers.update(_walk(client, "/brief/", app.brief_app.callback_map))
+    answers.update(_walk(client, "/board/", app.board_app.callback_map))
     executor.shutdown()
     bad = {k: v[:2] for k, v in answers.items()
            if v[0] not in ((200, 204, 400) if v[2] else (200, 204))

@@ -48,6 +48,7 @@ def test_summary_sentence(args, must, must_not):
 def test_percent_change_is_from_the_continuous_rate():
     assert wording.pct_per_day(math.log(1.1)) == pytest.approx(10.0)
     assert wording.fmt_pct(-2.34) == "−2.3%"
+    assert wording.fmt_pct(-0.04) == "+0.0%" and wording.fmt_pct(-0.4) == "−0.4%"  # no signed zero
     assert wording.fmt_date_range("2026-05-28", "2026-06-03") == "28 May to 3 Jun 2026"
     assert wording.fmt_date_range("2025-12-30", "2026-01-02") == "30 Dec 2025 to 2 Jan 2026"
 

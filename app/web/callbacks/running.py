@@ -72,14 +72,29 @@ def named(values):
     return dict(zip(NAMES, values))
 
 
-def fit(n_clicks, series_key, cps, *values):
-    """Submit a run; returns (url search, run id, error message)."""
+def fit(n_clicks, series_key, cps, *values_and_shown):
+    """Submit a run; returns (url search, run id, error message).
+
+    A fit of a board's series (the run shown was opened from a board, and
+    the series is the same) becomes that series' current run on the board.
+    """
     if not n_clicks:
         return no_update, no_update, no_update
+    *values, shown = values_and_shown
     runs = services().runs
-    rec, message = submit_from_controls(
-        series_key, cps if isinstance(cps, list) else [], named(values),
-        lambda series, opts, user, public: runs.submit(series, opts, owner=user, spec=public))
+    from ...boards import BoardService
+
+    boards = BoardService(runs)
+    on_board = boards.board_of(shown) if isinstance(shown, str) else None
+
+    def submit(series, opts, user, public):
+        same = on_board is not None and series.content_hash() == on_board[2]
+        rec = runs.submit(series, opts, owner=user, spec=public, parent=on_board[0] if same else None)
+        if same:
+            boards.attach_refit(on_board[0], on_board[1], rec["id"])
+        return rec
+
+    rec, message = submit_from_controls(series_key, cps if isinstance(cps, list) else [], named(values), submit)
     if rec is None:
         return no_update, no_update, message
     return f"?run={rec['id']}", rec["id"], ""
@@ -145,6 +160,7 @@ def register(app):
         Output(ids.FIT_ERROR, "children"),
         Input(ids.FIT, "n_clicks"),
         *controls,
+        State(ids.RUN_ID, "data"),
         prevent_initial_call=True,
     )(store_guarded(fit, 3, {2: lambda t: t}))
     app.callback(
