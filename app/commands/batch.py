@@ -84,6 +84,9 @@ def register(sub):
                    help="regions fitted at once on this machine (default: one per core)")
     p.add_argument("--redis", metavar="URL",
                    help="fit on the team's workers through this Redis URL instead of locally")
+    p.add_argument("--board", nargs="?", const="new", metavar="BOARD_ID",
+                   help="with --redis: record the fits as a board that the team server shows at /board/<id> "
+                        "(a new board; with BOARD_ID, the next release of that board)")
     p.add_argument("--quiet", action="store_true", help="no progress on stderr")
     p.set_defaults(handler=run_batch)
 
@@ -92,6 +95,10 @@ def run_batch(args):
     """Handler of ``bendline batch``; returns the exit status."""
     if args.workers is not None and args.workers < 1:
         sys.stderr.write(f"bendline batch: --workers must be at least 1, got {args.workers}\n")
+        return EXIT_INPUT
+    if args.board and not args.redis:
+        sys.stderr.write("bendline batch: --board needs --redis: boards live on a team server, which shows "
+                         "them at /board/<id>\n")
         return EXIT_INPUT
     try:
         given = check_options(args)
@@ -118,7 +125,19 @@ def run_batch(args):
         if isinstance(service, str):
             sys.stderr.write(f"bendline batch: {service}\n")
             return EXIT_ERROR
-        fits = fit_on_team(jobs, service, given=given)
+        if args.board:
+            try:
+                pending, board_id = board_release(args, service, given, outcomes)
+            except InputError as exc:
+                sys.stderr.write(f"bendline batch: {exc}\n")
+                return EXIT_INPUT
+            except KeyError:
+                sys.stderr.write(f"bendline batch: there is no board {args.board!r} on this team server\n")
+                return EXIT_INPUT
+            sys.stderr.write(f"bendline batch: board {board_id}: the team server shows it at /board/{board_id}\n")
+            fits = follow_on_team(pending, service)
+        else:
+            fits = fit_on_team(jobs, service, given=given)
     else:
         fits = fit_locally(jobs, args.workers, given)
     progress = RegionProgress(len(order), quiet=args.quiet)
@@ -299,6 +318,40 @@ def team_service(url):
     return RunService(store, CeleryExecutor(url))
 
 
+def _owner():
+    import getpass
+
+    try:
+        return getpass.getuser()
+    except (KeyError, OSError):
+        return "batch"
+
+
+def board_release(args, service, given, outcomes):
+    """Record the file as a board release on the team's store; returns ({region: run id}, board id).
+
+    Regions the board could not fit are added to ``outcomes`` as failures.
+    """
+    from ..boards import BoardService
+
+    with open(args.file, "rb") as fh:
+        data = fh.read()
+    label = os.path.basename(args.file)
+    loader = {k: getattr(args, k) for k in ("date_column", "count_column", "interval") if getattr(args, k)}
+    boards = BoardService(service)
+    if args.board == "new":
+        board = boards.create(data, label, args.by, given, owner=_owner(), loader=loader)
+    else:
+        board = boards.add_release(args.board, data, label, owner=_owner())
+    pending = {}
+    for row in board["releases"][-1]["series"]:
+        if row["run_id"]:
+            pending[row["name"]] = row["run_id"]
+        else:
+            outcomes[row["name"]] = failed(f"region '{row['name']}': {row['reason']}")
+    return pending, board["id"]
+
+
 def fit_on_team(jobs, service, *, poll_seconds=TEAM_POLL_SECONDS, sleep=time.sleep,
                 clock=time.monotonic, log=sys.stderr, given=None):
     """Create one run per region on the team's workers and yield (region, outcome) as each finishes.
@@ -308,15 +361,9 @@ def fit_on_team(jobs, service, *, poll_seconds=TEAM_POLL_SECONDS, sleep=time.sle
     TeamQueueError
         When the queue cannot take a run (the runs already queued are stopped).
     """
-    import getpass
-
     from ..runs import QueueUnavailable
-    from ..store import FINISHED
 
-    try:
-        owner = getpass.getuser()
-    except (KeyError, OSError):
-        owner = "batch"
+    owner = _owner()
     pending = {}
     try:
         for region, (series, options) in jobs.items():
@@ -324,9 +371,30 @@ def fit_on_team(jobs, service, *, poll_seconds=TEAM_POLL_SECONDS, sleep=time.sle
                 pending[region] = service.submit(series, options, owner=owner, spec=given)["id"]
             except InputError as exc:
                 yield region, failed(str(exc))
-            except QueueUnavailable:
-                raise TeamQueueError("the team's queue did not take the runs; check that Redis is up "
-                                     "and try again") from None
+    except BaseException as exc:  # refused or interrupted: do not leave runs going on the team's workers
+        for run_id in pending.values():
+            _stop_quietly(service, run_id)
+        if isinstance(exc, QueueUnavailable):
+            raise TeamQueueError("the team's queue did not take the runs; check that Redis is up "
+                                 "and try again") from None
+        raise
+    yield from follow_on_team(pending, service, poll_seconds=poll_seconds, sleep=sleep, clock=clock, log=log)
+
+
+def _stop_quietly(service, run_id):
+    try:
+        service.stop(run_id)
+    except Exception:  # noqa: BLE001 - stopping is best effort
+        pass
+
+
+def follow_on_team(pending, service, *, poll_seconds=TEAM_POLL_SECONDS, sleep=time.sleep,
+                   clock=time.monotonic, log=sys.stderr):
+    """Yield (region, outcome) as each of ``pending`` ({region: run id}) finishes on the team's workers."""
+    from ..store import FINISHED
+
+    pending = dict(pending)
+    try:
         started, warned = clock(), False
         while pending:
             states = {}
@@ -355,10 +423,7 @@ def fit_on_team(jobs, service, *, poll_seconds=TEAM_POLL_SECONDS, sleep=time.sle
             sleep(poll_seconds)
     finally:  # interrupted or refused: do not leave runs going on the team's workers
         for run_id in pending.values():
-            try:
-                service.stop(run_id)
-            except Exception:  # noqa: BLE001 - stopping is best effort
-                pass
+            _stop_quietly(service, run_id)
 
 
 # --------------------------------------------------------------------------

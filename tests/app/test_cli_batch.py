@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import json
 import os
+import re
 import sys
 
 import numpy as np
@@ -229,3 +230,35 @@ def test_redis_mode_creates_one_run_per_region_and_waits_for_them(tmp_path, monk
     result = json.loads((out / "alpha.json").read_text())
     assert result["run_id"] == runs[0]["id"]
     assert "2/2 regions done" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_a_batch_recorded_as_a_board_is_the_boards_release(tmp_path, monkeypatch, capsys):
+    """``--board``: the fits are the board's runs; ``--board ID`` adds the next release to that board."""
+    from bendline.app.boards import BoardService, board_view
+
+    store = DiskRunStore(str(tmp_path / "team"))
+    service = RunService(store, InlineExecutor(store, background=True))  # stands in for the workers
+    monkeypatch.setattr(batch, "team_service", lambda url: service)
+    s, _ = simulate(np.random.default_rng(1), "2026-01-05", 70, start_level=30.0, knot_days=[35.0],
+                    growth_rate_per_day=[0.03, -0.02], dispersion=50.0)
+    path = tmp_path / "two.csv"
+    _long_csv(path, {"Alpha": ("2026-01-05", [int(v) for v in s.values]),
+                     "Tiny": ("2026-01-05", [4, 6, 5, 7, 9])})
+    out = tmp_path / "fits"
+    args = ["batch", str(path), "--by", "district", *FAST, "--redis", "redis://team:6379/0", "--out-dir", str(out)]
+    assert cli.main(args + ["--board"]) == 3  # Tiny cannot be fitted
+    err = capsys.readouterr().err
+    board_id = re.search(r"board ([0-9a-f]{16})", err).group(1)
+    assert f"/board/{board_id}" in err
+    boards = BoardService(service)
+    rows = {r["series"]: r for r in board_view(boards.get(board_id), service)["releases"][0]["rows"]}
+    assert rows["Tiny"]["status"] == "refused" and "too few" in rows["Tiny"]["reason"]
+    result = json.loads((out / "alpha.json").read_text())
+    assert result["run_id"] == rows["Alpha"]["run_id"]
+    assert cli.main(args + ["--board", board_id]) == 3
+    assert len(boards.get(board_id)["releases"]) == 2
+    assert cli.main(args + ["--board", "0123456789abcdef"]) == 2
+    assert "no board" in capsys.readouterr().err
+    assert cli.main(["batch", str(path), "--by", "district", "--board"]) == 2
+    assert "--board needs --redis" in capsys.readouterr().err
