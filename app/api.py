@@ -267,6 +267,45 @@ def add_release(board_id):
     return _board_answer(board, 201)
 
 
+@api.post("/boards/<board_id>/refit")
+def refit_board_series(board_id):
+    """Fit series of a board's latest release again (its owner or an admin).
+
+    JSON body, optional: ``{"series": [names], "spec": {options}}``; by
+    default every series whose run failed or was stopped, with the board's
+    own choices (``spec`` overrides them for these runs only).
+    """
+    from .boards import BoardService
+
+    boards = BoardService(services().runs)
+    board = boards.get(board_id) if valid_run_id(board_id) else None
+    if board is None:
+        return _error(404, _NO_SUCH_BOARD)
+    user, admin = current_user()
+    if board.get("owner") != user and not admin:
+        return _error(403, "only the board's owner or an admin can refit its series")
+    body = request.get_json(silent=True) if request.get_data(cache=True) else {}
+    if not isinstance(body, dict):
+        return _error(400, 'expected a JSON object such as {"series": ["North"], "spec": {"max_seconds": 900}}',
+                      source="request")
+    names, spec = body.get("series"), body.get("spec") or {}
+    if names is not None and (not isinstance(names, list) or not all(isinstance(n, str) for n in names)):
+        return _error(400, "'series' must be a list of series names", source="request", column="series")
+    if not isinstance(spec, dict) or "by" in spec:
+        return _error(400, "'spec' must be an object of fit options (the board's 'by' cannot change)",
+                      source="request", column="spec")
+    try:
+        done = boards.refit(board_id, names, spec, owner=user)
+    except InputError as exc:
+        return jsonify({"error": Refused.from_input_error(exc, source="spec").body}), 400
+    except QueueUnavailable:
+        return _error(503, "the runs could not be queued: the fitting queue is not reachable right now")
+    response = _board_answer(boards.get(board_id), 202)
+    body = response.get_json()
+    body["refit"] = done
+    return jsonify(body), 202
+
+
 @api.route("/", defaults={"rest": ""}, methods=["GET", "POST", "PUT", "PATCH", "DELETE"])
 @api.route("/<path:rest>", methods=["GET", "POST", "PUT", "PATCH", "DELETE"])
 def unknown_endpoint(rest):
@@ -284,7 +323,7 @@ def unknown_endpoint(rest):
         return _wrong_method("GET, POST")
     if re.fullmatch(r"boards/[^/]+", rest):
         return _wrong_method("GET")
-    if re.fullmatch(r"boards/[^/]+/releases", rest):
+    if re.fullmatch(r"boards/[^/]+/(releases|refit)", rest):
         return _wrong_method("POST")
     if rest.startswith("boards/"):
         return _error(404, _NO_SUCH_BOARD)

@@ -183,6 +183,50 @@ class BoardService:
                     return self.store.update_run(board_id, releases=releases, status="running")
         return None
 
+    def refit(self, board_id, names=None, spec=None, *, owner="local"):
+        """Fit series of the latest release again; returns {name: new run id or the reason it was refused}.
+
+        ``names`` defaults to every series whose run failed, was stopped or
+        deleted; ``spec`` (public options) overrides the board's choices for
+        these runs only (e.g. a larger time budget).
+        """
+        from bendline.inference.options import check_public, engine_options
+
+        board = self.get(board_id)
+        if board is None:
+            raise KeyError(board_id)
+        merged = check_public({**board["spec"], **(spec or {})})
+        rows = board["releases"][-1]["series"]
+        if names is None:
+            names = [r["name"] for r in rows if self._needs_refit(r)]
+        known = {r["name"]: r for r in rows}
+        unknown = [n for n in names if n not in known]
+        if unknown:
+            raise InputError(f"no series {unknown[0]!r} in this board's latest release", column="series")
+        out = {}
+        for name in names:
+            row = known[name]
+            source = next((rid for rid in reversed(row.get("history", [])) if self.runs.series(rid) is not None), None)
+            if source is None:
+                out[name] = row.get("reason") or "its data are not kept; load a new release instead"
+                continue
+            series = self.runs.series(source)
+            try:
+                rec = self.runs.submit(series, engine_options(merged, series), owner=owner, spec=merged,
+                                       kind="fit", parent=board_id)
+            except InputError as exc:
+                out[name] = str(exc)
+                continue
+            self.attach_refit(board_id, name, rec["id"])
+            out[name] = rec["id"]
+        return out
+
+    def _needs_refit(self, row):
+        if row.get("run_id") is None:
+            return False  # refused at load: fitting it again would be refused again
+        rec = self.runs.get(row["run_id"])
+        return rec is None or rec["status"] in ("failed", "stopped")
+
     def board_of(self, run_id):
         """(board id, series name, series hash) when ``run_id`` is a series' run in a board's latest release."""
         rec = self.runs.get(run_id)

@@ -59,6 +59,8 @@ RELEASE_UPLOAD = "board-release-upload"
 RELEASE_NAME = "board-release-name"
 RELEASE = "board-release"
 RELEASE_MESSAGE = "board-release-message"
+REFIT = "board-refit"
+REFIT_MESSAGE = "board-refit-message"
 LIST = "board-list"
 SORTS = (("attention", "Needs attention first"), ("growth", "Growth, fastest first"),
          ("name", "Series name"), ("change", "Latest change date, newest first"))
@@ -117,6 +119,10 @@ def layout():
                 html.Span(id=RELEASE_NAME, className="muted"),
                 html.Button("Load release and fit again", id=RELEASE, className="btn"),
                 html.Div(id=RELEASE_MESSAGE, className="message", role="alert"),
+                html.Button("Fit failed or stopped series again", id=REFIT, className="btn",
+                            title="A new run, with the board's choices, for every series whose run failed or "
+                                  "was stopped (e.g. a worker that was killed)"),
+                html.Div(id=REFIT_MESSAGE, className="message", role="status"),
             ]),
             html.Fieldset(className="field radio-field", children=[
                 html.Legend("Sort the reportable series by", className="field-label", id=legend_id(SORT)),
@@ -285,6 +291,31 @@ def add_release(n, contents, filename, pathname):
     return False, "Release loaded: every series is being fitted again."
 
 
+def refit_failed(n, pathname):
+    if not n:
+        return no_update, no_update
+    board_id = board_id_from_path(pathname)
+    boards = BoardService(services().runs)
+    board = boards.get(board_id) if board_id else None
+    user, admin = current_user()
+    if board is None:
+        return no_update, NO_SUCH_BOARD
+    if board.get("owner") != user and not admin:
+        return no_update, "Only the board's owner or an admin can refit its series."
+    try:
+        done = boards.refit(board_id, owner=user)
+    except QueueUnavailable:
+        return no_update, "The fit queue is unavailable; nothing was lost, try again shortly."
+    if not done:
+        return no_update, "No series of the latest release failed or was stopped: nothing to fit again."
+    started = [n for n, v in done.items() if valid_run_id(v)]
+    refused = [f"{n} ({v})" for n, v in done.items() if not valid_run_id(v)]
+    text = f"Fitting again: {', '.join(started)}." if started else ""
+    if refused:
+        text += f" Not fitted: {'; '.join(refused)}."
+    return False, text.strip()
+
+
 def create_board_app(flask_server, services_):
     from . import ASSETS, INDEX_STRING
 
@@ -304,6 +335,9 @@ def create_board_app(flask_server, services_):
                  Input(RELEASE, "n_clicks"), State(RELEASE_UPLOAD, "contents"), State(RELEASE_UPLOAD, "filename"),
                  State(URL, "pathname"), prevent_initial_call=True)(
         store_guarded(add_release, 2, {1: lambda t: t}))
+    app.callback(Output(POLL, "disabled", allow_duplicate=True), Output(REFIT_MESSAGE, "children"),
+                 Input(REFIT, "n_clicks"), State(URL, "pathname"), prevent_initial_call=True)(
+        store_guarded(refit_failed, 2, {1: lambda t: t}))
     app.clientside_callback("function(name) { return name ? 'Chosen: ' + name : ''; }",
                             Output(UPLOAD_NAME, "children"), Input(UPLOAD, "filename"))
     app.clientside_callback("function(name) { return name ? 'Chosen: ' + name : ''; }",

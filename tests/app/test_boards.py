@@ -245,3 +245,28 @@ def test_the_board_pages_report_csv_and_briefing_view(make_app, regions_text):
     assert "no substitute for epidemiological judgement" in report
     brief = client.get(f"/brief/board/{bid}").get_data(as_text=True)
     assert "Needs attention" in brief and "presenting" in brief and "http-equiv=\"refresh\"" not in brief
+
+
+def test_failed_series_are_fitted_again_from_the_board_with_their_own_data(make_app, regions_text):
+    client = make_app()
+    board = _post(client, "/api/v1/boards", regions_text, dict(SPEC, segments=1)).get_json()
+    bid = board["id"]
+    rows = {r["name"]: r for r in board["releases"][0]["series"]}
+    store = client.services.store
+    store.update_run(rows["Quillby"]["run_id"], status="failed", reason="the worker sent no heartbeat for 30 s")
+    answer = client.post(f"/api/v1/boards/{bid}/refit", json={"spec": {"draws": 150}})
+    assert answer.status_code == 202, answer.get_data(as_text=True)
+    body = answer.get_json()
+    assert list(body["refit"]) == ["Quillby"]  # only the failed one
+    new = body["refit"]["Quillby"]
+    now = {r["name"]: r for r in body["releases"][-1]["series"]}
+    assert now["Quillby"]["run_id"] == new and now["Quillby"]["status"] in ("converged", "unconverged")
+    assert now["Orlund"]["run_id"] == rows["Orlund"]["run_id"]  # nothing else touched
+    assert client.services.runs.series(new).content_hash() == client.services.runs.series(
+        rows["Quillby"]["run_id"]).content_hash()  # the same data
+    assert store.get_run(new)["spec"]["draws"] == 150  # the override, for this run only
+    # refusals name the problem
+    assert client.post(f"/api/v1/boards/{bid}/refit", json={"series": ["Nowhere"]}).status_code == 400
+    assert client.post(f"/api/v1/boards/{bid}/refit", json={"spec": {"by": "x"}}).status_code == 400
+    assert client.post(f"/api/v1/boards/{bid}/refit", json=[1]).status_code == 400
+    assert client.post("/api/v1/boards/0123456789abcdef/refit", json={}).status_code == 404

@@ -46,7 +46,7 @@ class Api:
         except urllib.error.HTTPError as err:
             return err.code, json.loads(err.read() or b"null")
 
-    def submit_file(self, path, spec):
+    def submit_file(self, path, spec, endpoint="/api/v1/runs"):
         boundary = uuid.uuid4().hex
         with open(path, "rb") as fh:
             payload = fh.read()
@@ -55,7 +55,7 @@ class Api:
             f"--{boundary}\r\nContent-Disposition: form-data; name=\"file\"; filename=\"data.csv\"\r\n"
             "Content-Type: text/csv\r\n\r\n"
         ).encode() + payload + f"\r\n--{boundary}--\r\n".encode()
-        req = urllib.request.Request(self.base + "/api/v1/runs", data=body, method="POST", headers={
+        req = urllib.request.Request(self.base + endpoint, data=body, method="POST", headers={
             "Authorization": f"Bearer {self.token}", "Content-Type": f"multipart/form-data; boundary={boundary}"})
         with urllib.request.urlopen(req, timeout=30) as resp:
             return json.loads(resp.read())
