@@ -354,7 +354,7 @@ def _http_error(exc):
         404: "no such endpoint; the API has /api/v1/runs and /api/v1/runs/<id>",
         405: f"method {request.method} is not allowed here",
         413: f"the request is too large; files may be at most "
-             f"{reader.MAX_BYTES // (1024 * 1024)} MB",
+             f"{reader.limits.MAX_BYTES // (1024 * 1024)} MB",
     }
     message = messages.get(exc.code, exc.name.lower() if exc.name else "the request was refused")
     return _error(exc.code or 500, message)
@@ -375,7 +375,7 @@ def register_api(flask_app):
     """
     flask_app.register_blueprint(api)
     if not flask_app.config.get("MAX_CONTENT_LENGTH"):
-        flask_app.config["MAX_CONTENT_LENGTH"] = 2 * reader.MAX_BYTES + 1024 * 1024
+        flask_app.config["MAX_CONTENT_LENGTH"] = 2 * reader.limits.MAX_BYTES + 1024 * 1024
 
     def http_error(exc):
         if request.path.startswith(api.url_prefix + "/") or request.path == api.url_prefix:
@@ -441,8 +441,8 @@ def _read_form_submission():
     if upload is None:
         raise Refused(400, "the form has no field 'file'; attach the CSV file as 'file'",
                       source="request", column="file")
-    data = upload.read(reader.MAX_BYTES + 1)  # one byte more tells "too large"
-    _check_size(len(data), exact=len(data) <= reader.MAX_BYTES)
+    data = upload.read(reader.limits.MAX_BYTES + 1)  # one byte more tells "too large"
+    _check_size(len(data), exact=len(data) <= reader.limits.MAX_BYTES)
     label = _file_label(upload.filename)
     spec_text = form.get("spec", "")
     if spec_text.strip():
@@ -463,11 +463,11 @@ def _read_form_submission():
 
 
 def _check_size(n_bytes, exact=True):
-    """413 when the file is over :data:`inference.reader.MAX_BYTES`.
+    """413 when the file is over :data:`inference.reader.limits.MAX_BYTES`.
 
     ``exact`` is False when only the first ``MAX_BYTES + 1`` bytes were read.
     """
-    limit = reader.MAX_BYTES
+    limit = reader.limits.MAX_BYTES
     if n_bytes > limit:
         size = f"{n_bytes / 1024 / 1024:.1f} MB ({n_bytes:,} bytes), " if exact else ""
         raise Refused(413, f"the file is {size}over the limit of {limit / 1024 / 1024:g} MB "

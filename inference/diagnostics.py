@@ -76,7 +76,7 @@ _BLOM_C = 3.0 / 8.0
 # ---------------------------------------------------------------------------
 
 
-def _to_pcn(x):
+def to_pcn(x):
     """(chains, draws, *shape) -> float array (P, C, N) and the param shape."""
     a = np.asarray(x, dtype=float)
     if a.ndim == 0:
@@ -90,7 +90,7 @@ def _to_pcn(x):
     return np.ascontiguousarray(pcn), pshape
 
 
-def _out(values, pshape):
+def as_param_shape(values, pshape):
     """(P,) -> float for scalar parameters, else array of the param shape."""
     values = np.asarray(values, dtype=float)
     if pshape == ():
@@ -98,7 +98,7 @@ def _out(values, pshape):
     return values.reshape(pshape)
 
 
-def _split_pcn(a):
+def split_pcn(a):
     """Split each chain in halves, as ArviZ does: (P, C, N) -> (P, 2C, N//2).
 
     With an odd N the middle draw is dropped (``x[:, :half]`` and
@@ -136,7 +136,7 @@ def _average_ranks(flat):
     return ranks
 
 
-def _z_scale_pcn(a):
+def z_scale_pcn(a):
     """Rank-normalise each parameter over all its chains and draws jointly.
 
     VGSCB 2021 (rank normalisation): z = Phi^-1((r - 3/8) / (S - 2*3/8 + 1)), r the
@@ -149,7 +149,7 @@ def _z_scale_pcn(a):
     return z.reshape(p, c, n)
 
 
-def _bad_params(a, min_chains=1):
+def bad_params(a, min_chains=1):
     """Mask (P,) of parameters ArviZ 0.23.4 would refuse (NaN or too short)."""
     p, c, n = a.shape
     bad = np.isnan(a).any(axis=(1, 2))
@@ -213,7 +213,7 @@ def _autocov(a):
     return cov
 
 
-def _ess_core(a):
+def ess_core(a):
     """Multi-chain ESS of each row of (P, C, N) (no splitting or ranking here).
 
     VGSCB 2021 section 3.2 (multi-chain ESS): the combined autocorrelation
@@ -269,32 +269,32 @@ def _ess_core(a):
     return out
 
 
-def _ess_quantile_pcn(a, prob):
+def ess_quantile_pcn(a, prob):
     """ESS of the indicator I(x <= q_prob), VGSCB 2021 (quantile ESS)."""
     p, c, n = a.shape
     q = _type7_quantile(a.reshape(p, c * n), prob)
     ind = (a <= q[:, None, None]).astype(float)
-    return _ess_core(_split_pcn(ind))
+    return ess_core(split_pcn(ind))
 
 
-def _ess_tail_pcn(a):
+def ess_tail_pcn(a):
     """min(ESS of I(x <= q05), ESS of I(x <= q95)), VGSCB 2021 (tail-ESS)."""
-    low = _ess_quantile_pcn(a, 0.05)
-    high = _ess_quantile_pcn(a, 0.95)
+    low = ess_quantile_pcn(a, 0.05)
+    high = ess_quantile_pcn(a, 0.95)
     # Python's min(low, high), as ArviZ uses: keep `low` unless high < low.
     return np.where(high < low, high, low)
 
 
-def _rhat_rank_pcn(a, z_split=None):
+def rhat_rank_pcn(a, z_split=None):
     """Rank-normalised split R-hat, max of bulk and folded (VGSCB 2021)."""
-    split = _split_pcn(a)
+    split = split_pcn(a)
     if z_split is None:
-        z_split = _z_scale_pcn(split)
+        z_split = z_scale_pcn(split)
     bulk = _rhat_core(z_split)
     p, c2, h = split.shape
     med = np.median(split.reshape(p, c2 * h), axis=1)
     folded = np.abs(split - med[:, None, None])
-    tail = _rhat_core(_z_scale_pcn(folded))
+    tail = _rhat_core(z_scale_pcn(folded))
     # Python's max(bulk, tail), as ArviZ uses: keep `bulk` unless tail > bulk.
     return np.where(tail > bulk, tail, bulk)
 
@@ -349,8 +349,8 @@ def rank_normalize(x):
         Standard-normal scores, dimensionless. NaN input gives NaN for that
         parameter.
     """
-    a, pshape = _to_pcn(x)
-    z = _z_scale_pcn(a)
+    a, pshape = to_pcn(x)
+    z = z_scale_pcn(a)
     c, n = a.shape[1:]
     return np.moveaxis(z, 0, 2).reshape((c, n) + pshape)
 
@@ -375,13 +375,13 @@ def rhat(x):
         < 1.01) at convergence. NaN for a single chain, fewer than 4 draws,
         NaN draws, or a constant parameter.
     """
-    a, pshape = _to_pcn(x)
-    bad = _bad_params(a, min_chains=2)
+    a, pshape = to_pcn(x)
+    bad = bad_params(a, min_chains=2)
     res = np.full(a.shape[0], np.nan)
     if not bad.all():
-        res = _rhat_rank_pcn(a)
+        res = rhat_rank_pcn(a)
         res[bad] = np.nan
-    return _out(res, pshape)
+    return as_param_shape(res, pshape)
 
 
 def ess_bulk(x):
@@ -401,13 +401,13 @@ def ess_bulk(x):
         Effective number of draws (count, may exceed chains * draws for
         antithetic chains). NaN for fewer than 4 draws or NaN draws.
     """
-    a, pshape = _to_pcn(x)
-    bad = _bad_params(a)
+    a, pshape = to_pcn(x)
+    bad = bad_params(a)
     res = np.full(a.shape[0], np.nan)
     if not bad.all():
-        res = _ess_core(_z_scale_pcn(_split_pcn(a)))
+        res = ess_core(z_scale_pcn(split_pcn(a)))
         res[bad] = np.nan
-    return _out(res, pshape)
+    return as_param_shape(res, pshape)
 
 
 def ess_quantile(x, prob):
@@ -429,14 +429,14 @@ def ess_quantile(x, prob):
     float or numpy.ndarray of shape param_shape
         Effective number of draws for that quantile (count).
     """
-    prob = _check_prob(prob)
-    a, pshape = _to_pcn(x)
-    bad = _bad_params(a)
+    prob = check_prob(prob)
+    a, pshape = to_pcn(x)
+    bad = bad_params(a)
     res = np.full(a.shape[0], np.nan)
     if not bad.all():
-        res = _ess_quantile_pcn(a, prob)
+        res = ess_quantile_pcn(a, prob)
         res[bad] = np.nan
-    return _out(res, pshape)
+    return as_param_shape(res, pshape)
 
 
 def ess_tail(x):
@@ -455,13 +455,13 @@ def ess_tail(x):
     float or numpy.ndarray of shape param_shape
         Effective number of draws (count).
     """
-    a, pshape = _to_pcn(x)
-    bad = _bad_params(a)
+    a, pshape = to_pcn(x)
+    bad = bad_params(a)
     res = np.full(a.shape[0], np.nan)
     if not bad.all():
-        res = _ess_tail_pcn(a)
+        res = ess_tail_pcn(a)
         res[bad] = np.nan
-    return _out(res, pshape)
+    return as_param_shape(res, pshape)
 
 
 def ess_mean(x):
@@ -480,13 +480,13 @@ def ess_mean(x):
     float or numpy.ndarray of shape param_shape
         Effective number of draws (count).
     """
-    a, pshape = _to_pcn(x)
-    bad = _bad_params(a)
+    a, pshape = to_pcn(x)
+    bad = bad_params(a)
     res = np.full(a.shape[0], np.nan)
     if not bad.all():
-        res = _ess_core(_split_pcn(a))
+        res = ess_core(split_pcn(a))
         res[bad] = np.nan
-    return _out(res, pshape)
+    return as_param_shape(res, pshape)
 
 
 def nested_rhat(x, n_superchains):
@@ -525,7 +525,7 @@ def nested_rhat(x, n_superchains):
         Dimensionless, >= 1; NaN for NaN draws, inf when W_nu = 0 but
         B_nu > 0, NaN when both are 0.
     """
-    a, pshape = _to_pcn(x)
+    a, pshape = to_pcn(x)
     p, c, n = a.shape
     k = int(n_superchains)
     if k != n_superchains or k < 2:
@@ -544,10 +544,10 @@ def nested_rhat(x, n_superchains):
     w_nu = (b_tilde + w_tilde).mean(axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
         res = np.sqrt(1.0 + b_nu / w_nu)
-    return _out(res, pshape)
+    return as_param_shape(res, pshape)
 
 
-def _check_prob(prob):
+def check_prob(prob):
     prob = float(prob)
     if not 0.0 < prob < 1.0:
         raise ValueError(f"prob must be in (0, 1), got {prob}")

@@ -17,16 +17,16 @@ import numpy as np
 from scipy import stats as _stats
 
 from .diagnostics import (
-    _bad_params,
-    _check_prob,
-    _ess_core,
-    _ess_quantile_pcn,
-    _ess_tail_pcn,
-    _out,
-    _rhat_rank_pcn,
-    _split_pcn,
-    _to_pcn,
-    _z_scale_pcn,
+    bad_params,
+    check_prob,
+    ess_core,
+    ess_quantile_pcn,
+    ess_tail_pcn,
+    as_param_shape,
+    rhat_rank_pcn,
+    split_pcn,
+    to_pcn,
+    z_scale_pcn,
 )
 
 __all__ = ["mcse_mean", "mcse_quantile", "summarize"]
@@ -53,15 +53,15 @@ def mcse_mean(x):
     float or numpy.ndarray of shape param_shape
         Standard error, in the parameter's units.
     """
-    a, pshape = _to_pcn(x)
-    bad = _bad_params(a)
+    a, pshape = to_pcn(x)
+    bad = bad_params(a)
     res = np.full(a.shape[0], np.nan)
     if not bad.all():
-        ess = _ess_core(_split_pcn(a))
+        ess = ess_core(split_pcn(a))
         sd = a.reshape(a.shape[0], -1).std(axis=1, ddof=1)
         res = sd / np.sqrt(ess)
         res[bad] = np.nan
-    return _out(res, pshape)
+    return as_param_shape(res, pshape)
 
 
 def mcse_quantile(x, prob):
@@ -86,13 +86,13 @@ def mcse_quantile(x, prob):
     float or numpy.ndarray of shape param_shape
         Standard error, in the parameter's units.
     """
-    prob = _check_prob(prob)
-    a, pshape = _to_pcn(x)
-    bad = _bad_params(a)
+    prob = check_prob(prob)
+    a, pshape = to_pcn(x)
+    bad = bad_params(a)
     p = a.shape[0]
     res = np.full(p, np.nan)
     if not bad.all():
-        ess = _ess_quantile_pcn(a, prob)
+        ess = ess_quantile_pcn(a, prob)
         with np.errstate(invalid="ignore"):
             ppf = _stats.beta.ppf(
                 _MCSE_Q_PROBS[None, :],
@@ -107,7 +107,7 @@ def mcse_quantile(x, prob):
         rows = np.arange(p)
         res = (xs[rows, hi] - xs[rows, lo]) / 2
         res[bad] = np.nan
-    return _out(res, pshape)
+    return as_param_shape(res, pshape)
 
 
 
@@ -183,11 +183,11 @@ def summarize(draws, names=None):
             if len(labels) != n_par:
                 raise ValueError(f"{len(labels)} names for {n_par} parameters")
 
-    a, _ = _to_pcn(arr)
+    a, _ = to_pcn(arr)
     p = a.shape[0]
     flat = a.reshape(p, -1)
-    bad1 = _bad_params(a)
-    bad2 = _bad_params(a, min_chains=2)
+    bad1 = bad_params(a)
+    bad2 = bad_params(a, min_chains=2)
     nan = np.full(p, np.nan)
     with np.errstate(invalid="ignore"):
         mean = flat.mean(axis=1)
@@ -196,13 +196,13 @@ def summarize(draws, names=None):
     if bad1.all():
         r_hat, e_bulk, e_tail, m_mean = nan, nan, nan, nan
     else:
-        split = _split_pcn(a)
-        z_split = _z_scale_pcn(split)
-        r_hat = _rhat_rank_pcn(a, z_split) if not bad2.all() else nan.copy()
+        split = split_pcn(a)
+        z_split = z_scale_pcn(split)
+        r_hat = rhat_rank_pcn(a, z_split) if not bad2.all() else nan.copy()
         r_hat = np.where(bad2, np.nan, r_hat)
-        e_bulk = np.where(bad1, np.nan, _ess_core(z_split))
-        e_tail = np.where(bad1, np.nan, _ess_tail_pcn(a))
-        e_mean = _ess_core(split)
+        e_bulk = np.where(bad1, np.nan, ess_core(z_split))
+        e_tail = np.where(bad1, np.nan, ess_tail_pcn(a))
+        e_mean = ess_core(split)
         m_mean = np.where(bad1, np.nan, sd / np.sqrt(e_mean))
     rows = []
     for i in range(p):

@@ -59,7 +59,7 @@ from scipy import special
 from .defaults import resolve
 from .errors import InputError
 from .fastmath import psi_minus_log
-from .model_outputs import _LOG_C_FLOOR, TrendOutputs
+from .model_outputs import LOG_C_FLOOR, TrendOutputs
 from .series import Series
 from .spec import ModelSpec
 
@@ -362,7 +362,7 @@ class TrendModel(TrendOutputs):
         phi = log_c = None
         if self.negbin:
             log_c = theta[:, self.slices["log_c"]][:, 0]
-            phi = np.exp(-2.0 * np.maximum(log_c, _LOG_C_FLOOR))
+            phi = np.exp(-2.0 * np.maximum(log_c, LOG_C_FLOOR))
         parts = parts or {}
         return _Forward(p, gaps, tau, eta, r, beta, jumps, w7, logmu, mu, phi, log_c,
                         parts.get("hinge"), parts.get("ramp"), parts.get("inside"))
@@ -429,7 +429,7 @@ class TrendModel(TrendOutputs):
         return g, self._d_logc(fw, d_phi)
 
     def _d_logc(self, fw, d_phi):
-        return np.where(fw.log_c > _LOG_C_FLOOR, d_phi * (-2.0 * fw.phi), 0.0)
+        return np.where(fw.log_c > LOG_C_FLOOR, d_phi * (-2.0 * fw.phi), 0.0)
 
     def _gradient(self, theta, fw, g, d_logc_lik):
         """Chain rule from d loglik / d log mu to theta, plus the prior's gradient."""

@@ -16,7 +16,7 @@ from scipy import special
 #: evaluated as if c were at the floor: it is indistinguishable from Poisson
 #: there, and the floor keeps lgamma differences accurate.
 C_FLOOR = 1e-3
-_LOG_C_FLOOR = float(np.log(C_FLOOR))
+LOG_C_FLOOR = float(np.log(C_FLOOR))
 
 
 class TrendOutputs:
@@ -58,7 +58,7 @@ class TrendOutputs:
             out["weekday"] = self.weekday7(theta)
         if self.negbin:
             log_c = theta[:, self.slices["log_c"]][:, 0]
-            out["dispersion"] = np.exp(-2.0 * np.maximum(log_c, _LOG_C_FLOOR))
+            out["dispersion"] = np.exp(-2.0 * np.maximum(log_c, LOG_C_FLOOR))
         return out
 
     def log_trend(self, theta, t=None):

@@ -29,7 +29,7 @@ Warnings, each ``{kind, message, parameter, blocking}``:
     A change date with separated modes; the result reports each mode
     (not blocking: the modes are the honest answer).
 ``data``
-    Too little signal: every observed value zero, nearly all values
+    Too little signal: nearly all values
     missing, or too few events for the segments asked (blocking).
 ``chains``
     Chains stuck far below the others were left out (not blocking).
@@ -112,10 +112,7 @@ def data_warnings(model):
     """Too little signal in the values that enter the fit."""
     y = model.y_obs
     out = []
-    if y.size and not np.any(y > 0):
-        out.append(_warning("data", "Every value that enters the fit is zero: there is no trend to estimate, "
-                                    "and growth rates and change dates mean nothing here.", None))
-        return out
+    # a series whose fitted values are all zero never gets here: TrendModel refuses it
     share = model.obs_index.size / model.n
     if share < OBSERVED_SHARE:
         out.append(_warning("data", f"Only {model.obs_index.size} of {model.n} values are observed "

@@ -27,19 +27,23 @@ The package is split by what each part does:
   :func:`list_regions`, which put the above together;
 * :mod:`.wording`: small helpers for the messages.
 
-:data:`MAX_BYTES` and :data:`MAX_ROWS` live here and the modules look them up
-on this package when they check a file, so that rebinding
-``inference.reader.MAX_BYTES`` (as a test or a deployment may) takes effect.
+:data:`MAX_BYTES` and :data:`MAX_ROWS` live in :mod:`.limits`, where the
+modules look them up when they check a file: rebind
+``inference.reader.limits.MAX_BYTES`` (as a test or a deployment may) to
+change a limit. The package re-exports their values.
 """
 
 from __future__ import annotations
 
+from . import limits
 from .columns import COUNT_NAMES, DATE_NAMES, REGION_NAMES
+from .limits import MAX_BYTES, MAX_ROWS
 from .series import list_regions, read_all_regions, read_series, series_column
 from .table import read_table
 
 __all__ = [
     "series_column",
+    "limits",
     "MAX_BYTES",
     "MAX_ROWS",
     "DATE_NAMES",
@@ -50,9 +54,3 @@ __all__ = [
     "read_series",
     "read_all_regions",
 ]
-
-#: Largest file accepted, in bytes (20 MB).
-MAX_BYTES = 20 * 1024 * 1024
-
-#: Largest number of data rows accepted in one file.
-MAX_ROWS = 200_000

@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 from ..errors import InputError
-from .values import _MISSING_TOKENS, _CellError, _parse_count, _parse_date
-from .wording import _norm, _quoted
+from .values import MISSING_TOKENS, CellError, parse_count, parse_date
+from .wording import normalised, quote_list
 
 #: Header names taken as the date column (compared case-insensitively, with
 #: spaces, dots and hyphens read as underscores).
@@ -77,23 +77,23 @@ REGION_NAMES = (
 )
 
 
-def _region_column(frame, label, region_column):
+def find_region_column(frame, label, region_column):
     columns = list(frame.columns)
     if region_column is not None:
         return _given_column(columns, region_column, "--region-column", "region", label)
     if len(columns) < 3:
         return None
-    found = [c for c in columns if _norm(c) in REGION_NAMES]
+    found = [c for c in columns if normalised(c) in REGION_NAMES]
     if len(found) > 1:
         raise InputError(
-            f"several columns could name the region: {_quoted(found)}; choose one with "
-            f"--region-column. The columns are: {_quoted(columns)}",
+            f"several columns could name the region: {quote_list(found)}; choose one with "
+            f"--region-column. The columns are: {quote_list(columns)}",
             source=label,
         )
     return found[0] if found else None
 
 
-def _regions(frame, col, label):
+def region_names(frame, col, label):
     values = frame[col]
     empty = values[values == ""]
     if len(empty):
@@ -111,19 +111,19 @@ def _regions(frame, col, label):
 def _given_column(columns, wanted, flag, what, label):
     if wanted in columns:
         return wanted
-    matches = [c for c in columns if _norm(c) == _norm(str(wanted))]
+    matches = [c for c in columns if normalised(c) == normalised(str(wanted))]
     if len(matches) == 1:
         return matches[0]
     raise InputError(
         f"there is no column '{wanted}' (asked for as the {what} column with {flag}); "
-        f"the columns are: {_quoted(columns)}",
+        f"the columns are: {quote_list(columns)}",
         source=label,
         column=str(wanted),
         value=wanted,
     )
 
 
-def _pick_columns(frame, label, date_column, count_column, region_col):
+def pick_columns(frame, label, date_column, count_column, region_col):
     """Resolve the date and count columns, by name, by content, or as given."""
     columns = list(frame.columns)
     taken = {region_col} if region_col else set()
@@ -164,18 +164,18 @@ def _pick_columns(frame, label, date_column, count_column, region_col):
 
 def _find_column(frame, label, candidates, names, tokens, looks_right, what, flag, examples,
                  last_resort=False):
-    all_columns = _quoted(list(frame.columns))
+    all_columns = quote_list(list(frame.columns))
 
     def ambiguous(found):
         return InputError(
-            f"several columns could hold {what}: {_quoted(found)}; choose one with "
+            f"several columns could hold {what}: {quote_list(found)}; choose one with "
             f"{flag}. The columns are: {all_columns}",
             source=label,
         )
 
     # 1. a header from the list; 2. a header containing one of its words whose
     # values fit; 3. the only column whose values fit; 4. the only column left.
-    exact = [c for c in candidates if _norm(c) in names]
+    exact = [c for c in candidates if normalised(c) in names]
     if len(exact) == 1:
         return exact[0]
     if len(exact) > 1:
@@ -185,7 +185,7 @@ def _find_column(frame, label, candidates, names, tokens, looks_right, what, fla
         raise ambiguous(exact)
     partial = [
         c for c in candidates
-        if tokens.intersection(_norm(c).split("_")) and looks_right(frame[c])
+        if tokens.intersection(normalised(c).split("_")) and looks_right(frame[c])
     ]
     if len(partial) == 1:
         return partial[0]
@@ -207,16 +207,16 @@ def _find_column(frame, label, candidates, names, tokens, looks_right, what, fla
 
 def _looks_like_dates(values):
     sample = [v for v in values.head(200).tolist() if v][:20]
-    return bool(sample) and all(_parse_date(v)[0] is not None for v in sample)
+    return bool(sample) and all(parse_date(v)[0] is not None for v in sample)
 
 
 def _looks_like_counts(values, sep=","):
-    sample = [v for v in values.head(200).tolist() if v.lower() not in _MISSING_TOKENS][:20]
+    sample = [v for v in values.head(200).tolist() if v.lower() not in MISSING_TOKENS][:20]
     if not sample:
         return False
     for v in sample:
         try:
-            _parse_count(v)
-        except _CellError:
+            parse_count(v)
+        except CellError:
             return False
     return True

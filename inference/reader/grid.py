@@ -9,10 +9,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from .. import reader as _pkg  # MAX_ROWS, looked up at call time
+from . import limits  # looked up at call time, so rebinding a limit takes effect
 from ..errors import InputError
 from ..series import DataQualityNote
-from .values import _iso, _weekday
+from .values import iso_text, weekday_label
 
 _INTERVALS = {
     "day": 1,
@@ -26,7 +26,7 @@ _INTERVALS = {
 }
 
 
-def _interval_days(interval):
+def interval_step(interval):
     if interval is None:
         return None
     key = str(interval).strip().lower()
@@ -40,13 +40,13 @@ def _interval_days(interval):
     )
 
 
-def _check_unique_dates(frame, rows, days, label, dcol, where):
+def check_unique_dates(frame, rows, days, label, dcol, where):
     """Raise when two rows have the same date."""
     first_row = {}
     for row, day in zip(rows, days.tolist()):
         if day in first_row:
             raise InputError(
-                f"rows {first_row[day]} and {row} both have the date {_iso(day)}{where}; "
+                f"rows {first_row[day]} and {row} both have the date {iso_text(day)}{where}; "
                 "each date may appear only once. Delete the repeated row, or, if the file "
                 "holds several regions, name the column that tells them apart with "
                 "--region-column",
@@ -55,7 +55,7 @@ def _check_unique_dates(frame, rows, days, label, dcol, where):
         first_row[day] = row
 
 
-def _sort_by_date(rows, days, values):
+def sort_by_date(rows, days, values):
     """Sort the rows by date (stable).
 
     Returns the sorted days, values and rows, and a ``reordered`` note when
@@ -66,14 +66,14 @@ def _sort_by_date(rows, days, values):
     if np.any(np.diff(days) < 0):
         k = int(np.argmax(np.diff(days) < 0)) + 1
         note = DataQualityNote(
-            rows[k], _iso(days[k]), "reordered",
-            f"rows were not in date order (row {rows[k]}, {_iso(days[k])}, comes after "
-            f"{_iso(days[k - 1])}); sorted by date",
+            rows[k], iso_text(days[k]), "reordered",
+            f"rows were not in date order (row {rows[k]}, {iso_text(days[k])}, comes after "
+            f"{iso_text(days[k - 1])}); sorted by date",
         )
     return days[order], values[order], [rows[j] for j in order], note
 
 
-def _grid_step(days, rows, forced, label, dcol, where):
+def grid_step(days, rows, forced, label, dcol, where):
     """Check the sorted dates against a daily or weekly grid; return the step."""
     first = int(days[0])
     if forced is not None:
@@ -82,17 +82,17 @@ def _grid_step(days, rows, forced, label, dcol, where):
             if off.size:
                 k = int(off[0])
                 raise InputError(
-                    f"'{_iso(days[k])}' (a {_weekday(days[k])}) is not a whole number of "
-                    f"weeks after the first date {_iso(first)} (a {_weekday(first)}); "
-                    f"with --interval week every date must fall on a {_weekday(first)}",
-                    source=label, row=rows[k], column=dcol, value=_iso(days[k]),
+                    f"'{iso_text(days[k])}' (a {weekday_label(days[k])}) is not a whole number of "
+                    f"weeks after the first date {iso_text(first)} (a {weekday_label(first)}); "
+                    f"with --interval week every date must fall on a {weekday_label(first)}",
+                    source=label, row=rows[k], column=dcol, value=iso_text(days[k]),
                 )
         return forced
     if days.size < 2:
         raise InputError(
-            f"the series{where} has a single date ({_iso(first)}), so it cannot tell a daily "
+            f"the series{where} has a single date ({iso_text(first)}), so it cannot tell a daily "
             "series from a weekly one; add more rows or pass --interval day or --interval week",
-            source=label, row=rows[0], column=dcol, value=_iso(first),
+            source=label, row=rows[0], column=dcol, value=iso_text(first),
         )
     diffs = np.diff(days)
     median = float(np.median(diffs))
@@ -106,11 +106,11 @@ def _grid_step(days, rows, forced, label, dcol, where):
             return 7
         k = int(off[0]) + 1
         raise InputError(
-            f"the dates look weekly (mostly 7 days apart), but '{_iso(days[k])}' (a "
-            f"{_weekday(days[k])}) is {int(diffs[k - 1])} days after the previous date "
-            f"{_iso(days[k - 1])}; weekly dates must all fall on the same weekday "
-            f"({_weekday(first)}, as the first date {_iso(first)})",
-            source=label, row=rows[k], column=dcol, value=_iso(days[k]),
+            f"the dates look weekly (mostly 7 days apart), but '{iso_text(days[k])}' (a "
+            f"{weekday_label(days[k])}) is {int(diffs[k - 1])} days after the previous date "
+            f"{iso_text(days[k - 1])}; weekly dates must all fall on the same weekday "
+            f"({weekday_label(first)}, as the first date {iso_text(first)})",
+            source=label, row=rows[k], column=dcol, value=iso_text(days[k]),
         )
     off = np.nonzero((diffs != 1) & (diffs != 7))[0]
     if off.size == 0:  # a mix of 1- and 7-day steps
@@ -120,14 +120,14 @@ def _grid_step(days, rows, forced, label, dcol, where):
     raise InputError(
         f"the dates are {median:g} days apart in the middle of the series{looks}; expected "
         f"daily dates (1 day apart) or weekly dates (7 days apart, on the same weekday). "
-        f"'{_iso(days[k])}' is {int(diffs[k - 1])} days after the previous date "
-        f"{_iso(days[k - 1])}. If the series is daily or weekly with many missing dates, "
+        f"'{iso_text(days[k])}' is {int(diffs[k - 1])} days after the previous date "
+        f"{iso_text(days[k - 1])}. If the series is daily or weekly with many missing dates, "
         "pass --interval day or --interval week",
-        source=label, row=rows[k], column=dcol, value=_iso(days[k]),
+        source=label, row=rows[k], column=dcol, value=iso_text(days[k]),
     )
 
 
-def _place_on_grid(days, values, rows, step, label, dcol, where):
+def place_on_grid(days, values, rows, step, label, dcol, where):
     """Put the sorted values on the grid from the first date, ``NaN`` where absent.
 
     Returns the first day, the grid of values and a mask of the grid points
@@ -135,11 +135,11 @@ def _place_on_grid(days, values, rows, step, label, dcol, where):
     """
     start = int(days[0])
     n = (int(days[-1]) - start) // step + 1
-    if n > _pkg.MAX_ROWS:
+    if n > limits.MAX_ROWS:
         raise InputError(
-            f"the dates{where} span {_iso(days[0])} (row {rows[0]}) to "
-            f"{_iso(days[-1])} (row {rows[-1]}), {n:,} {'days' if step == 1 else 'weeks'}, "
-            f"more than the {_pkg.MAX_ROWS:,} limit; check those dates for a typing error in "
+            f"the dates{where} span {iso_text(days[0])} (row {rows[0]}) to "
+            f"{iso_text(days[-1])} (row {rows[-1]}), {n:,} {'days' if step == 1 else 'weeks'}, "
+            f"more than the {limits.MAX_ROWS:,} limit; check those dates for a typing error in "
             "the year",
             source=label, column=dcol,
         )
@@ -151,7 +151,7 @@ def _place_on_grid(days, values, rows, step, label, dcol, where):
     return start, grid, present
 
 
-def _gap_notes(present, start, step):
+def describe_gaps(present, start, step):
     """One ``gap`` note per run of grid points without a row."""
     n = len(present)
     gap_notes = []
@@ -167,9 +167,9 @@ def _gap_notes(present, start, step):
         a, b = start + i * step, start + j * step
         count = j - i + 1
         if count == 1:
-            msg = f"1 {unit} missing on {_iso(a)}, kept as missing, not zero"
+            msg = f"1 {unit} missing on {iso_text(a)}, kept as missing, not zero"
         else:
-            msg = f"{count} {unit}s missing from {_iso(a)} to {_iso(b)}, kept as missing, not zero"
-        gap_notes.append(DataQualityNote(None, _iso(a), "gap", msg))
+            msg = f"{count} {unit}s missing from {iso_text(a)} to {iso_text(b)}, kept as missing, not zero"
+        gap_notes.append(DataQualityNote(None, iso_text(a), "gap", msg))
         i = j + 1
     return gap_notes

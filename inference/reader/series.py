@@ -10,18 +10,18 @@ import numpy as np
 
 from ..errors import InputError
 from ..series import DataQualityNote, Series
-from .columns import _pick_columns, _region_column, _regions
+from .columns import pick_columns, find_region_column, region_names
 from .grid import (
-    _check_unique_dates,
-    _gap_notes,
-    _grid_step,
-    _interval_days,
-    _place_on_grid,
-    _sort_by_date,
+    check_unique_dates,
+    describe_gaps,
+    grid_step,
+    interval_step,
+    place_on_grid,
+    sort_by_date,
 )
 from .table import read_table
-from .values import _iso, _read_cells
-from .wording import _plural, _quoted, _row_list, _short_list
+from .values import iso_text, read_cells
+from .wording import plural, quote_list, row_list, short_list
 
 
 def list_regions(source, *, region_column=None, name=None):
@@ -52,10 +52,10 @@ def list_regions(source, *, region_column=None, name=None):
         could name the region, or if a region cell is empty.
     """
     frame, label = read_table(source, name=name)
-    col = _region_column(frame, label, region_column)
+    col = find_region_column(frame, label, region_column)
     if col is None:
         return []
-    return _regions(frame, col, label)
+    return region_names(frame, col, label)
 
 
 def series_column(source, *, region_column=None, name=None):
@@ -65,7 +65,7 @@ def series_column(source, *, region_column=None, name=None):
     by name as in :func:`list_regions`.
     """
     frame, label = read_table(source, name=name)
-    return _region_column(frame, label, region_column)
+    return find_region_column(frame, label, region_column)
 
 
 def read_series(source, *, date_column=None, count_column=None, region_column=None,
@@ -111,25 +111,25 @@ def read_series(source, *, date_column=None, count_column=None, region_column=No
         was expected.
     """
     frame, label = read_table(source, name=name)
-    step = _interval_days(interval)
-    region_col = _region_column(frame, label, region_column)
+    step = interval_step(interval)
+    region_col = find_region_column(frame, label, region_column)
     if region_col is None:
         if region is not None:
             raise InputError(
                 f"region '{region}' was asked for (--region), but the file has no region "
-                f"column; the columns are: {_quoted(list(frame.columns))}. Name the column "
+                f"column; the columns are: {quote_list(list(frame.columns))}. Name the column "
                 "holding the region with --region-column",
                 source=label,
                 value=region,
             )
-        dcol, ccol = _pick_columns(frame, label, date_column, count_column, None)
+        dcol, ccol = pick_columns(frame, label, date_column, count_column, None)
         return _build(frame, label, dcol, ccol, step, label, frame.attrs["notes"])
-    regions = _regions(frame, region_col, label)
+    regions = region_names(frame, region_col, label)
     if region is None:
         if len(regions) > 1:
             raise InputError(
                 f"the file holds {len(regions)} regions in this column "
-                f"({_short_list(regions)}); choose one with --region (region=...), or fit "
+                f"({short_list(regions)}); choose one with --region (region=...), or fit "
                 "them all as a batch",
                 source=label,
                 column=region_col,
@@ -137,7 +137,7 @@ def read_series(source, *, date_column=None, count_column=None, region_column=No
         chosen = regions[0]
     else:
         chosen = _match_region(regions, region, region_col, label)
-    dcol, ccol = _pick_columns(frame, label, date_column, count_column, region_col)
+    dcol, ccol = pick_columns(frame, label, date_column, count_column, region_col)
     return _series_for_region(frame, label, region_col, chosen, regions, dcol, ccol, step)
 
 
@@ -167,13 +167,13 @@ def read_all_regions(source, *, region_column=None, date_column=None, count_colu
         stops the batch, and the message names the rows involved.
     """
     frame, label = read_table(source, name=name)
-    step = _interval_days(interval)
-    region_col = _region_column(frame, label, region_column)
+    step = interval_step(interval)
+    region_col = find_region_column(frame, label, region_column)
     if region_col is None:
-        dcol, ccol = _pick_columns(frame, label, date_column, count_column, None)
+        dcol, ccol = pick_columns(frame, label, date_column, count_column, None)
         return {label: _build(frame, label, dcol, ccol, step, label, frame.attrs["notes"])}
-    regions = _regions(frame, region_col, label)
-    dcol, ccol = _pick_columns(frame, label, date_column, count_column, region_col)
+    regions = region_names(frame, region_col, label)
+    dcol, ccol = pick_columns(frame, label, date_column, count_column, region_col)
     return {
         r: _series_for_region(frame, label, region_col, r, regions, dcol, ccol, step)
         for r in regions
@@ -188,7 +188,7 @@ def _match_region(regions, region, region_col, label):
         return folded[0]
     raise InputError(
         f"region '{region}' is not in the file; the regions found in this column are: "
-        f"{_short_list(regions, limit=50)}",
+        f"{short_list(regions, limit=50)}",
         source=label,
         column=region_col,
         value=region,
@@ -206,8 +206,8 @@ def _series_for_region(frame, label, region_col, chosen, regions, dcol, ccol, st
                 None,
                 None,
                 "dropped_region",
-                f"kept the {_plural(int(mask.sum()), 'row')} of region '{chosen}'; "
-                f"{_plural(left, 'row')} of {_plural(len(regions) - 1, 'other region')} "
+                f"kept the {plural(int(mask.sum()), 'row')} of region '{chosen}'; "
+                f"{plural(left, 'row')} of {plural(len(regions) - 1, 'other region')} "
                 "left out",
             ),
         )
@@ -220,36 +220,36 @@ def _build(frame, label, dcol, ccol, step, series_name, table_notes, extra_notes
     """Turn the rows of one series into a :class:`Series`."""
     where = f" of region '{region}'" if region is not None else ""
     notes = list(table_notes) + list(extra_notes)
-    rows, days, values, row_notes, thousands_rows = _read_cells(frame, label, dcol, ccol)
+    rows, days, values, row_notes, thousands_rows = read_cells(frame, label, dcol, ccol)
 
     if thousands_rows:
         notes.append(
             DataQualityNote(
                 None, None, "thousands",
-                f"thousands separators removed from {_plural(len(thousands_rows), 'cell')} "
-                f"in column '{ccol}'{where} ({_row_list(thousands_rows)})",
+                f"thousands separators removed from {plural(len(thousands_rows), 'cell')} "
+                f"in column '{ccol}'{where} ({row_list(thousands_rows)})",
             )
         )
 
-    _check_unique_dates(frame, rows, days, label, dcol, where)
-    days, values, rows_sorted, reordered = _sort_by_date(rows, days, values)
+    check_unique_dates(frame, rows, days, label, dcol, where)
+    days, values, rows_sorted, reordered = sort_by_date(rows, days, values)
     if reordered is not None:
         notes.append(reordered)
 
-    step = _grid_step(days, rows_sorted, step, label, dcol, where)
-    start, grid, present = _place_on_grid(days, values, rows_sorted, step, label, dcol, where)
-    gap_notes = _gap_notes(present, start, step)
+    step = grid_step(days, rows_sorted, step, label, dcol, where)
+    start, grid, present = place_on_grid(days, values, rows_sorted, step, label, dcol, where)
+    gap_notes = describe_gaps(present, start, step)
 
     used = int(np.isfinite(grid).sum())
     if used == 0:
         raise InputError(
-            f"none of the {_plural(len(rows), 'row')}{where} has a usable count (all are "
+            f"none of the {plural(len(rows), 'row')}{where} has a usable count (all are "
             "empty, NA or negative); expected whole counts of zero or more",
             source=label, column=ccol,
         )
     row_notes.sort(key=lambda note: note.row)
     return Series(
-        np.datetime64(_iso(start), "D"),
+        np.datetime64(iso_text(start), "D"),
         grid,
         step,
         series_name,

@@ -12,12 +12,12 @@ import io
 
 import pandas as pd
 
-from .. import reader as _pkg  # MAX_ROWS, looked up at call time
+from . import limits  # looked up at call time, so rebinding a limit takes effect
 from ..errors import InputError
 from ..series import DataQualityNote
-from .text import _SEPARATORS, _load_text
-from .values import _parse_date
-from .wording import _column_letter, _norm, _plural, _row_list
+from .text import SEPARATORS, load_text
+from .values import parse_date
+from .wording import column_letter, normalised, plural, row_list
 
 _SEPARATOR_NAMES = {",": "comma", ";": "semicolon", "\t": "tab"}
 
@@ -54,7 +54,7 @@ def read_table(source, *, name=None):
         header or only blank lines, has unbalanced quotes, or has a row with
         more cells than the header.
     """
-    text, label = _load_text(source, name)
+    text, label = load_text(source, name)
     if not text.strip():
         if text == "":
             raise InputError(
@@ -101,9 +101,9 @@ def read_table(source, *, name=None):
             cells = cells + [""] * (len(header) - len(cells))
         data_rows.append(rownum)
         data.append(cells)
-        if len(data) > _pkg.MAX_ROWS:
+        if len(data) > limits.MAX_ROWS:
             raise InputError(
-                f"the file has more than {_pkg.MAX_ROWS:,} data rows (the limit); "
+                f"the file has more than {limits.MAX_ROWS:,} data rows (the limit); "
                 f"split it or keep only the period you want to fit",
                 source=label,
                 row=rownum,
@@ -138,8 +138,8 @@ def read_table(source, *, name=None):
                 inner[0],
                 None,
                 "blank",
-                f"{_plural(len(inner), 'empty row')} between data rows skipped "
-                f"({_row_list(inner)})",
+                f"{plural(len(inner), 'empty row')} between data rows skipped "
+                f"({row_list(inner)})",
             )
         )
     if trailing:
@@ -148,8 +148,8 @@ def read_table(source, *, name=None):
                 trailing[0],
                 None,
                 "trailing",
-                f"{_plural(len(trailing), 'empty row')} at the end of the file ignored "
-                f"({_row_list(trailing)})",
+                f"{plural(len(trailing), 'empty row')} at the end of the file ignored "
+                f"({row_list(trailing)})",
             )
         )
     frame.attrs.update(
@@ -164,7 +164,7 @@ def _sniff(text):
     sample = text[:65536]
     truncated = len(text) > len(sample)
     best, best_key = ",", (-1.0, 0)
-    for sep in _SEPARATORS:
+    for sep in SEPARATORS:
         try:
             rows = list(
                 csv.reader(io.StringIO(sample, newline=""), delimiter=sep, skipinitialspace=True)
@@ -216,7 +216,7 @@ def _records(text, sep, label):
 def _header_names(header, header_row, data, label):
     """Column names from the header row; None for an empty, unnamed column."""
     for cell in header:
-        if _parse_date(cell)[0] is not None:
+        if parse_date(cell)[0] is not None:
             raise InputError(
                 f"the first row looks like data ('{cell}' is a date), not a header; add a "
                 "header row naming the columns, for example date,count",
@@ -229,19 +229,19 @@ def _header_names(header, header_row, data, label):
         if cell:
             names.append(cell)
         elif any(row[i] for row in data):
-            names.append(f"column {_column_letter(i)}")
+            names.append(f"column {column_letter(i)}")
         else:
             names.append(None)
     seen = {}
     for i, n in enumerate(names):
         if n is None:
             continue
-        key = _norm(n)
+        key = normalised(n)
         if key in seen:
             j = seen[key]
             raise InputError(
                 f"two columns have the same name: '{names[j]}' (column "
-                f"{_column_letter(j)}) and '{n}' (column {_column_letter(i)}); "
+                f"{column_letter(j)}) and '{n}' (column {column_letter(i)}); "
                 "give each column a different name",
                 source=label,
                 row=header_row,

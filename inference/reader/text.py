@@ -10,13 +10,13 @@ from __future__ import annotations
 import os
 import re
 
-from .. import reader as _pkg  # MAX_BYTES, looked up at call time
+from . import limits  # looked up at call time, so rebinding a limit takes effect
 from ..errors import InputError
 
-_SEPARATORS = (",", ";", "\t")
+SEPARATORS = (",", ";", "\t")
 
 
-def _load_text(source, name):
+def load_text(source, name):
     """Return the decoded text of ``source`` and its label."""
     if isinstance(source, (bytes, bytearray, memoryview)):
         data = bytes(source)
@@ -71,14 +71,14 @@ def _is_path(text):
         return True
     if re.search(r"\.(csv|tsv|txt|tab|dat)$", text, re.IGNORECASE):
         return True
-    return not any(s in text for s in _SEPARATORS)
+    return not any(s in text for s in SEPARATORS)
 
 
 def _check_size(size, label):
-    if size > _pkg.MAX_BYTES:
+    if size > limits.MAX_BYTES:
         raise InputError(
             f"the file is {size / 1024 / 1024:.1f} MB ({size:,} bytes); the limit is "
-            f"{_pkg.MAX_BYTES // (1024 * 1024)} MB. Keep only the columns and the period you "
+            f"{limits.MAX_BYTES // (1024 * 1024)} MB. Keep only the columns and the period you "
             "need, or split the file by region",
             source=label,
             value=size,

@@ -16,7 +16,7 @@ import numpy as np
 from ..errors import InputError
 from ..series import MAX_COUNT, DataQualityNote
 
-_MISSING_TOKENS = frozenset({"", "na", "n/a", "."})
+MISSING_TOKENS = frozenset({"", "na", "n/a", "."})
 _NONFINITE_TOKENS = frozenset(
     {"inf", "+inf", "-inf", "infinity", "+infinity", "-infinity", "nan", "+nan", "-nan"}
 )
@@ -43,11 +43,11 @@ _EPOCH = _dt.date(1970, 1, 1)
 _WEEKDAYS = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
 
 
-class _CellError(Exception):
+class CellError(Exception):
     """A cell that cannot be read; the caller adds row and column."""
 
 
-def _parse_date(text):
+def parse_date(text):
     """Return (days since 1970-01-01, None) or (None, reason)."""
     m = _DATE.match(text)
     if m is None:
@@ -76,15 +76,15 @@ def _parse_date(text):
     return (d - _EPOCH).days, None
 
 
-def _iso(day):
+def iso_text(day):
     return (_EPOCH + _dt.timedelta(days=int(day))).isoformat()
 
 
-def _weekday(day):
+def weekday_label(day):
     return _WEEKDAYS[(int(day) + 3) % 7]
 
 
-def _parse_count(text, sep=","):
+def parse_count(text, sep=","):
     """Read one count cell.
 
     Returns
@@ -96,10 +96,10 @@ def _parse_count(text, sep=","):
 
     Raises
     ------
-    _CellError
+    CellError
         With the reason, when the cell is not a usable number.
     """
-    if text.lower() in _MISSING_TOKENS:
+    if text.lower() in MISSING_TOKENS:
         return None, False
     thousands = False
     clean = text
@@ -109,41 +109,41 @@ def _parse_count(text, sep=","):
             clean = m.group(1) + m.group(2).replace(m.group(3), "") + (m.group(4) or "")
             thousands = True
         elif clean.lower() in _NONFINITE_TOKENS:
-            raise _CellError(
+            raise CellError(
                 "is not a finite number; expected a whole count such as 12, or an empty "
                 "cell or NA for a missing value"
             )
         elif _DECIMAL_COMMA.match(clean):
-            raise _CellError(
+            raise CellError(
                 "is not a whole number (a decimal comma?); expected a whole count such as "
                 "12, written without a decimal part"
             )
         elif clean.startswith("#"):
-            raise _CellError(
+            raise CellError(
                 "is a spreadsheet error value, not a number; fix the formula or leave the "
                 "cell empty for a missing value"
             )
         else:
-            raise _CellError(
+            raise CellError(
                 "is not a number; expected a whole count such as 12, or an empty cell, NA "
                 "or . for a missing value"
             )
     if sep == ";" and _DOT_GROUPS.match(clean):
-        raise _CellError(
+        raise CellError(
             "is ambiguous in a semicolon-separated file: it could be a whole number with "
             "'.' as thousands separator or a decimal; write counts without separators "
             "(for example 1234)"
         )
     value = float(clean)
     if not math.isfinite(value) or abs(value) > MAX_COUNT:
-        raise _CellError(
+        raise CellError(
             f"is too large to be a count (the limit is {MAX_COUNT:.0e}); check the cell "
             "for a typing error or a value from another column"
         )
     return value, thousands
 
 
-def _read_cells(frame, label, dcol, ccol):
+def read_cells(frame, label, dcol, ccol):
     """Read the date and count cell of every row of ``frame``.
 
     Returns
@@ -175,7 +175,7 @@ def _read_cells(frame, label, dcol, ccol):
                     f"the date is empty; expected {_EXPECTED_DATE}",
                     source=label, row=row, column=dcol, value="",
                 )
-            day, reason = _parse_date(dtext)
+            day, reason = parse_date(dtext)
             if day is None:
                 why = f" ({reason})" if reason else ""
                 raise InputError(
@@ -185,12 +185,12 @@ def _read_cells(frame, label, dcol, ccol):
             date_cache[dtext] = day
         days[i] = day
         try:
-            value, thousands = _parse_count(ctext, sep)
-        except _CellError as exc:
+            value, thousands = parse_count(ctext, sep)
+        except CellError as exc:
             raise InputError(
                 f"the count '{ctext}' {exc}", source=label, row=row, column=ccol, value=ctext,
             ) from None
-        iso = _iso(day)
+        iso = iso_text(day)
         if thousands:
             thousands_rows.append(row)
         if value is None:

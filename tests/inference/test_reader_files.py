@@ -164,7 +164,7 @@ def test_duplicate_column_names_error():
 
 
 def test_file_size_limit(monkeypatch):
-    monkeypatch.setattr(reader, "MAX_BYTES", 1024 * 1024)
+    monkeypatch.setattr(reader.limits, "MAX_BYTES", 1024 * 1024)
     big = ("date,count\n" + "2026-01-01,3\n" * 90_000).encode()
     e = error_of(read_table, big, name="big.csv")
     assert "big.csv" in str(e)
@@ -173,7 +173,7 @@ def test_file_size_limit(monkeypatch):
 
 
 def test_row_limit(monkeypatch):
-    monkeypatch.setattr(reader, "MAX_ROWS", 3)
+    monkeypatch.setattr(reader.limits, "MAX_ROWS", 3)
     text = "date,count\n" + "".join(f"2026-01-0{d},1\n" for d in range(1, 6))
     e = error_of(read_table, text, name="toy.csv")
     assert "more than 3 data rows" in str(e)

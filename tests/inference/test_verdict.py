@@ -65,9 +65,7 @@ def test_divergences_beyond_a_small_share_block_the_numbers():
 
 
 def test_too_little_signal_is_a_data_warning():
-    zeros = TrendModel(Series.from_counts("2026-01-05", np.zeros(60)), ModelSpec(segments=2))
-    got = data_warnings(zeros)
-    assert got[0]["kind"] == "data" and got[0]["blocking"] and "zero" in got[0]["message"]
+    # all zeros is refused before a fit (tests/inference/test_model.py); one case a week is too little
     sparse = TrendModel(Series.from_counts("2026-01-05", np.r_[np.ones(10), np.zeros(50)]), ModelSpec(segments=2))
     assert any("too few" in w["message"] for w in data_warnings(sparse))
     values = np.full(100, np.nan)
