@@ -35,7 +35,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import optimize as _opt
 from scipy.special import logsumexp as _logsumexp
 
 from .diagnostics import ess_mean as _ess_mean
@@ -309,6 +308,10 @@ def stacking_weights(pointwise_elpd):
 
     def gradient(w):
         return -np.sum(dens / (dens @ w)[:, None], axis=0) / n
+
+    # imported here, not at the top: scipy.optimize costs ~0.1 s to import and
+    # only the segment comparison needs it, not every fit
+    from scipy import optimize as _opt
 
     res = _opt.minimize(
         objective,
