@@ -1,4 +1,4 @@
-"""PSIS-LOO cross-validation and model weights (stacking, pseudo-BMA).
+"""PSIS-LOO cross-validation and stacking weights of models.
 
 * Pareto-smoothed importance sampling: Vehtari, Simpson, Gelman, Yao & Gabry
   (2024), "Pareto smoothed importance sampling", JMLR 25(72) ("VSGYG 2024"),
@@ -9,7 +9,7 @@
 * PSIS-LOO: Vehtari, Gelman & Gabry (2017), "Practical Bayesian model
   evaluation using leave-one-out cross-validation and WAIC", Statistics and
   Computing 27 ("VGG 2017").
-* Stacking and pseudo-BMA: Yao, Vehtari, Simpson & Gelman (2018), "Using
+* Stacking: Yao, Vehtari, Simpson & Gelman (2018), "Using
   stacking to average Bayesian predictive distributions", Bayesian Analysis
   ("YVSG 2018").
 
@@ -44,7 +44,6 @@ __all__ = [
     "loo",
     "relative_eff",
     "stacking_weights",
-    "pseudo_bma_weights",
 ]
 
 #: k-hat above this: the importance-sampling estimate is unreliable
@@ -324,29 +323,3 @@ def stacking_weights(pointwise_elpd):
     )
     w = np.clip(res.x, 0.0, None)
     return w / w.sum()
-
-
-def pseudo_bma_weights(elpds):
-    """Pseudo-BMA weights w_k proportional to exp(elpd_loo_k).
-
-    YVSG 2018 (pseudo-BMA, Akaike-type weights without the
-    Bayesian-bootstrap stabilisation); same as ArviZ 0.23.4
-    ``az.compare(method="pseudo-BMA")``.
-
-    Parameters
-    ----------
-    elpds : array_like, shape (K,)
-        elpd_loo of each model, nats.
-
-    Returns
-    -------
-    numpy.ndarray, shape (K,)
-        Weights >= 0 summing to 1.
-    """
-    e = np.asarray(elpds, dtype=float)
-    if e.ndim != 1 or e.size < 1:
-        raise ValueError(f"elpds must be a 1-D array of model elpds, got shape {e.shape}")
-    if not np.all(np.isfinite(e)):
-        raise ValueError("elpds contains NaN or infinite values")
-    z = np.exp(e - e.max())
-    return z / z.sum()

@@ -3,8 +3,8 @@
 Outside references:
 
 * ArviZ 0.23.4 ``az.loo(idata, pointwise=True)`` (default ``reff`` and an
-  explicit one), ``az.psislw``, ``az.compare(method="stacking")`` and
-  ``az.compare(method="pseudo-BMA")``. ArviZ consumes the same seeded
+  explicit one), ``az.psislw`` and ``az.compare(method="stacking")``.
+  ArviZ consumes the same seeded
   draws (``az.from_dict(posterior=..., log_likelihood=...)``).
 * The KKT conditions of the stacking objective of Yao, Vehtari, Simpson &
   Gelman (2018), Bayesian Analysis (derived in the test).
@@ -242,19 +242,6 @@ def test_stacking_dominant_and_permutation(rng):
     assert L.stacking_weights(pts[:, :1]).tolist() == [1.0]
 
 
-def test_pseudo_bma_matches_arviz_compare(rng):
-    """ArviZ 0.23.4 az.compare(..., method='pseudo-BMA'): w_k ~ exp(elpd_k)."""
-    fitted = fit_models(rng, MODELS_DISJOINT, outlier=False)
-    names = list(fitted)
-    cmp = az.compare({k: to_idata(*fitted[k]) for k in names}, method="pseudo-BMA")
-    ref = _weights_by_name(cmp)
-    elpds = [L.loo(fitted[k][1], reff=L.relative_eff({"beta": fitted[k][0]}))["elpd_loo"] for k in names]
-    ours = L.pseudo_bma_weights(elpds)
-    for i, k in enumerate(names):
-        assert ours[i] == pytest.approx(ref[k], rel=1e-6, abs=1e-12), k
-    np.testing.assert_allclose(L.pseudo_bma_weights([-10.0, -10.0 - np.log(3.0)]), [0.75, 0.25])
-
-
 def test_validation():
     with pytest.raises(ValueError, match="shape"):
         L.loo(np.zeros(5))
@@ -264,5 +251,3 @@ def test_validation():
         L.psis_smooth(np.zeros((10, 2)), reff=0.0)
     with pytest.raises(ValueError, match="observations, models"):
         L.stacking_weights(np.zeros(4))
-    with pytest.raises(ValueError, match="1-D"):
-        L.pseudo_bma_weights(np.zeros((2, 2)))
