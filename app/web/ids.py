@@ -38,8 +38,8 @@ ADOPT = "adopt-segments"
 # model and priors: one control per option of inference.options, its id the
 # option's name with dashes (app.web.controls.control_id)
 SEGMENTS = "segments"
-STALE_NOTE = "stale-note"
-ADVANCED = "advanced-sampler"  # the fold holding the sampler's settings  # "the controls changed since the fit shown"
+STALE_NOTE = "stale-note"  # "the controls changed since the fit shown"
+ADVANCED = "advanced-sampler"  # the fold holding the sampler's settings
 
 # running
 FIT = "fit-button"
@@ -66,6 +66,7 @@ CHANGE_HIST = "change-date-chart"
 RATES = "rates-chart"
 DIAG_SUMMARY = "diagnostics-summary"
 DIAG_TABLE = "diagnostics-table"
+DIAG_NOTE = "diagnostics-note"  # what R-hat and ESS mean, and the criterion, under the table
 TRACE = "trace-chart"
 TRACE_PARAM = "trace-parameter"
 WEEKDAY_FIG = "weekday-chart"

@@ -5,11 +5,12 @@ from __future__ import annotations
 from dash import dcc, html
 
 from bendline.inference.result import CAUTIONS
+from bendline.inference.snapshots import ESS_MIN, RHAT_MAX
 
 from . import ids
 from .controls import controls
 from .downloads import EXPORT_HINT, EXPORT_IDS, EXPORT_ROW, EXPORTS
-from .figures import empty_figure
+from .figures import diagnostics_note, empty_figure
 from .words import TITLES
 
 #: Poll period (ms) of the run panels while a run streams (app.web.callbacks.panels).
@@ -127,8 +128,9 @@ def model_section():
                  className="field-hint"),
         html.Details(id=ids.ADVANCED, className="advanced", children=[
             html.Summary("Advanced: sampler settings"),
-            html.P("The sampler runs until its chains agree: R-hat (how far the chains disagree; 1 is perfect) "
-                   "below 1.01 and at least 400 effective draws (ESS) for every quantity.", className="field-hint"),
+            html.P(f"The sampler runs until its chains agree: R-hat (how far the chains disagree; 1 is perfect) "
+                   f"below {RHAT_MAX:g} and at least {ESS_MIN:g} effective draws (ESS) for every quantity.",
+                   className="field-hint"),
             *controls("sampler"),
         ]),
     ])
@@ -146,8 +148,14 @@ def export_section():
     ])
 
 
-def run_section():
-    return html.Div(className="section run-section", children=[
+def run_bar():
+    """Fit, Stop and the briefing link: kept in view at the foot of the controls (sticky, assets/bendline.css).
+
+    It follows the model's controls in the page, so Tab reaches Fit right
+    after the last of them (and the skip link jumps to it); a refused Fit says
+    why right under the buttons.
+    """
+    return html.Div(className="run-bar", role="group", **{"aria-label": "Run"}, children=[
         html.Div(className="buttons", children=[
             html.Button("Fit", id=ids.FIT, className="btn primary", n_clicks=0,
                         title=f"Fit the model to the series ({FIT_KEYS})", **{"aria-keyshortcuts": FIT_KEYS}),
@@ -157,8 +165,13 @@ def run_section():
             html.A("Briefing view", id=ids.BRIEF_LINK, className="btn link-btn disabled", href="#",
                    target="_blank"),
         ]),
-        export_section(),
         html.Div(id=ids.FIT_ERROR, className="error", role="alert"),
+    ])
+
+
+def run_section():
+    return html.Div(className="section run-section", children=[
+        export_section(),
         html.Div(id=ids.PROGRESS, className="progress"),
         html.Details(open=True, className="section", children=[
             html.Summary("Runs"),
@@ -176,6 +189,8 @@ def results_area():
         html.Div(id=ids.ANNOUNCER, className="visually-hidden", role="status",
                  **{"aria-live": "polite", "aria-atomic": "true"}),
         html.Div(id=ids.STATUS_BANNER, className="banner"),
+        # the controls changed since the fit shown (callbacks/stale.py); read on demand, not announced
+        html.Div(id=ids.STALE_NOTE, className="stale-note"),
         html.Ul(id=ids.WARNINGS, className="warning-list", **{"aria-label": "Warnings"}),
         html.Div(id=ids.HEADLINE, className="headline"),
         html.P(id=ids.SUMMARY, className="summary-sentence"),
@@ -206,6 +221,7 @@ def results_area():
                 html.H3("Convergence"),
                 html.Div(id=ids.DIAG_SUMMARY, className="diag-summary"),
                 html.Div(id=ids.DIAG_TABLE, className="diag-table-box"),
+                html.P(diagnostics_note(None), id=ids.DIAG_NOTE, className="field-hint diag-note"),
             ]),
         ]),
         html.Div(className="row", children=[
@@ -271,7 +287,7 @@ def page(samples, series_key=None, team_user=None):
             "for epidemiological judgement: defer to your agency's methods and qualified epidemiologists.")),
         html.Main(className="body", children=[
             html.Aside(className="controls", children=[
-                data_section(samples), changepoint_section(), model_section(), run_section(),
+                data_section(samples), changepoint_section(), model_section(), run_bar(), run_section(),
             ]),
             results_area(),
         ]),

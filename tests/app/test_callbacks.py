@@ -301,10 +301,121 @@ def test_how_many_segments_compares_and_adopts(app):
         assert "The data support" in str(words)
         k = int(label.split()[1])
         assert 2 <= k <= 6
-        got_k, got_cps, said = segments.adopt(1, cid, cps)
+        got_k, got_cps, said = segments.adopt(1, cid, cps, key)
         assert got_k == k and got_cps == (cps if k == 2 else [])
-        assert f"Segments set to {k}" in said and (k == 2 or "change date was removed" in said)
+        assert f"Segments set to {k}" in said
+        # day 70 of a series starting 2026-01-05 is 2026-03-16: named when removed, said to stay when kept
+        assert ("Removed your 1 tentative change date (2026-03-16 ± 10 days)" in said if k != 2
+                else "change date is kept" in said)
         averaged = segments.strip(True, cid)
         assert len(averaged["probability"]) == 273 and averaged["series_hash"]
         # the member fits do not crowd the run list (no plain fits were made here)
         assert "No runs yet" in str(running.run_rows(0, 0, None))
+
+
+def test_a_moved_spread_shading_is_redrawn_from_the_list(app):
+    # shapes[0] is the line of the one change date, shapes[1] its spread shading,
+    # shapes[2] the highlight: moving either of the last two changes no date but
+    # sends the list back, so the chart is redrawn with the shading in step
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        cps = [{"day": 64.0, "spread_days": 10.0}]
+        trigger(f"{ids.MAIN}.relayoutData")
+        for shape in (1, 2):
+            out = changes.edit(1, None, {f"shapes[{shape}].x0": "2026-04-01", f"shapes[{shape}].x1": "2026-04-09"},
+                               [], [], cps, key)
+            assert out == cps and out is not cps
+        assert changes.edit(1, None, {"autosize": True}, [], [], cps, key) is no_update
+
+
+def test_a_new_upload_keeps_the_analysts_choices(app):
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        cps = [{"day": 64.0, "spread_days": 10.0}, {"day": 166.0, "spread_days": 7.0}]
+        trigger(f"{ids.UPLOAD}.contents")
+        out = loading.load(_contents(SAMPLE), None, None, None, "daily_admissions.csv", key, None, cps)
+        assert len(out) == loading.N_OUTPUTS
+        # the option controls (weekday effect included) are left as the analyst set them
+        assert all(v is no_update for v in out[8:8 + len(loading.CONTROL_IDS)])
+        assert out[1] == cps and out[-1] == ""
+        # a series that ends earlier keeps the change dates inside it, on the same calendar dates,
+        # and names the one it removed (day 166 = 2026-06-20)
+        rows = "date,cases\n" + "\n".join(f"2026-02-{d:02d},{10 + d}" for d in range(1, 29)) + "\n" + \
+            "\n".join(f"2026-03-{d:02d},{40 - d}" for d in range(1, 31)) + "\n"
+        short = loading.load(_contents(rows), None, None, None, "short.csv", key, None, cps)
+        series, _ = get_series(app.server.config["BENDLINE"].store, short[0])
+        assert str(series.start) == "2026-02-01"
+        assert short[1] == [{"day": 37.0, "spread_days": 10.0}]  # 2026-03-10, counted from 1 February
+        assert "2026-06-20 ± 7 days" in short[-1] and "outside the new series" in short[-1]
+        assert all(v is no_update for v in short[8:8 + len(loading.CONTROL_IDS)])
+
+
+def test_adopting_the_advice_says_what_it_removes(app, monkeypatch):
+    from bendline.app.runs import SegmentComparison
+    from bendline.app.web.callbacks import segments
+
+    advice = [{"segments": 2, "recommended": False}, {"segments": 3, "recommended": True}]
+    monkeypatch.setattr(SegmentComparison, "state", lambda self, cid: ({"id": cid}, advice))
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        one = [{"day": 64.0, "spread_days": 10.0}]
+        two = one + [{"day": 166.0, "spread_days": 7.0}]
+        k, cps, said = segments.adopt(1, "c1", two, key)
+        assert (k, cps) == (3, two) and "2 tentative change dates are kept" in said
+        k, cps, said = segments.adopt(1, "c1", one, key)
+        assert (k, cps) == (3, []) and "Removed your 1 tentative change date (2026-03-10 ± 10 days)" in said
+        assert "3 segments need 2 change dates" in said
+        assert segments.adopt(1, "c1", [], key)[:2] == (3, [])
+
+
+def test_a_fit_is_marked_out_of_date_when_its_controls_change(app):
+    from bendline.app.web.callbacks import stale
+    from bendline.inference.options import BY_NAME, label_for
+
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        cps = [{"day": 64.0, "spread_days": 10.0}]
+        chosen = dict(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2)
+        _, run_id, _ = running.fit(1, key, cps, *controls(**chosen), None)
+        assert stale.stale_note(run_id, key, cps, *controls(**chosen)) == ""
+        note = stale.stale_note(run_id, key, cps, *controls(**dict(chosen, weekday="off", draws=200)))
+        assert note.startswith(stale.STALE_LEAD)
+        for name in ("weekday", "draws"):
+            assert label_for(BY_NAME[name]) in note
+        assert label_for(BY_NAME["chains"]) not in note
+        moved = stale.stale_note(run_id, key, [{"day": 80.0, "spread_days": 10.0}], *controls(**chosen))
+        assert label_for(BY_NAME["change_date"]) in moved
+        blank = stale.stale_note(run_id, key, cps, *controls(**dict(chosen, chains=None)))
+        assert "Chains" in blank and "empty" in blank
+        # no run, or a run of another series: nothing to mark
+        assert stale.stale_note(None, key, cps, *controls(**chosen)) == ""
+        assert stale.stale_note(run_id, None, cps, *controls(**chosen)) == ""
+
+
+def test_run_list_entries_are_informative_and_unique(app):
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        made = [running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2),
+                            None)[1] for _ in range(2)]
+        store = app.server.config["BENDLINE"].store
+        for run_id in made:  # made in the same second: otherwise they would read alike
+            store.update_run(run_id, created_at="2026-12-02T14:43:05+00:00")
+        items = running.run_rows(0, 0, None)
+        texts = ["".join(str(c.children) for c in item.children) for item in items]
+        assert len(texts) == 2 and len(set(texts)) == 2, texts
+        for text in texts:
+            assert "daily_admissions.csv" in text and "2 segments" in text
+            assert "2026-12-02 14:43:05 UTC" in text and ("converged" in text or "not converged" in text)
+
+
+def test_the_convergence_table_says_what_r_hat_and_ess_mean(app):
+    from bendline.inference.snapshots import ESS_MIN, RHAT_MAX
+
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2),
+                                   None)
+        out = panels.render(key, [], "bars", "linear", None, run_id, None)
+        note = out[panels.NAMES.index("diag_note")]
+        assert "R-hat compares the chains" in note and "ESS is the number of independent draws" in note
+        assert f"below {RHAT_MAX:g}" in note and f"at least {ESS_MIN:,.0f}" in note

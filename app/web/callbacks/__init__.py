@@ -8,7 +8,7 @@ from __future__ import annotations
 
 
 def register(app):
-    from . import changes, exports, loading, panels, running, segments
+    from . import changes, exports, loading, panels, running, segments, stale
 
     loading.register(app)
     changes.register(app)
@@ -16,3 +16,4 @@ def register(app):
     panels.register(app)
     exports.register(app)
     segments.register(app)
+    stale.register(app)

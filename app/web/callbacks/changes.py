@@ -11,6 +11,7 @@ from .. import ids
 from ..context import get_series, services, store_guarded
 
 SHAPE_KEY = re.compile(r"^shapes\[(\d+)\]\.x0$")
+ANY_SHAPE_KEY = re.compile(r"^shapes\[(\d+)\]")
 DEFAULT_SPREAD = 14.0
 
 
@@ -57,7 +58,10 @@ def edit(add_clicks, click, relayout, spreads, removes, cps, series_key):
         cps.append({"day": day, "spread_days": DEFAULT_SPREAD})
     elif trig == ids.MAIN:
         # a drag: {'shapes[i].x0': ..., 'shapes[i].x1': ...}; other keys (autosize,
-        # zoom) are not edits of the lines
+        # zoom) are not edits of the lines. Shapes past the lines (the spread
+        # shading, the highlighted segment) are no handles: if one was moved
+        # anyway, the unchanged list goes back so the chart is redrawn from it
+        # and the shading is in step with the spread fields again.
         moved = False
         for key, value in (relayout or {}).items():
             m = SHAPE_KEY.match(key)
@@ -66,6 +70,8 @@ def edit(add_clicks, click, relayout, spreads, removes, cps, series_key):
                 if day is not None:
                     cps[int(m.group(1))]["day"] = day
                     moved = True
+            elif (m := ANY_SHAPE_KEY.match(key)) and int(m.group(1)) >= len(cps):
+                moved = True
         if not moved:
             return no_update
     elif isinstance(trig, dict) and trig.get("type") == ids.CHANGE_SPREAD:

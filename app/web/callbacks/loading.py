@@ -5,6 +5,8 @@ from __future__ import annotations
 import hashlib
 import os
 
+import numpy as np
+
 from dash import Input, Output, State, ctx, html, no_update
 
 from bendline.inference.errors import InputError
@@ -15,9 +17,12 @@ from bendline.inference.options import public_options
 from .. import ids
 from ..context import decode_upload, get_series, put_series, services, store_guarded
 from ..controls import NAMES, control_id, controls_from_public
+from .changes import DEFAULT_SPREAD
 
 # outputs of load(), in order: then one value per option control (app.web.controls.NAMES)
 CONTROL_IDS = tuple(control_id(name) for name in NAMES)
+#: How many outputs load() has: eight, the controls, the change-date message.
+N_OUTPUTS = 8 + len(CONTROL_IDS) + 1
 
 
 def controls_from_run(rec, series):
@@ -57,13 +62,52 @@ function(search, current) {
 """
 
 
-def load(contents, sample, region, request, filename, series_key, current_run):
+def carry_change_dates(old, series, cps):
+    """(change dates, message): the tentative change dates carried over to a newly loaded series.
+
+    A change date stays on its calendar date when that date falls inside the
+    new series (its day offset is counted from the new start); the others
+    are removed and the message names them. ``old`` is the series they were
+    placed on (None: nothing to carry).
+    """
+    if old is None or not isinstance(cps, list):
+        return [], ""
+    kept, dropped = [], []
+    for c in cps:
+        if not isinstance(c, dict) or not isinstance(c.get("day"), (int, float)) or isinstance(c.get("day"), bool):
+            continue
+        spread = c.get("spread_days", DEFAULT_SPREAD)
+        spread = float(spread) if isinstance(spread, (int, float)) and not isinstance(spread, bool) else DEFAULT_SPREAD
+        when = old.start + np.timedelta64(int(round(c["day"])), "D")
+        if series.start <= when <= series.end:
+            kept.append({"day": float((when - series.start) / np.timedelta64(1, "D")), "spread_days": spread})
+        else:
+            dropped.append(f"{when} ± {spread:g} days")
+    kept.sort(key=lambda c: c["day"])
+    if not dropped:
+        return kept, ""
+    n = len(dropped)
+    return kept, (f"{'These tentative change dates fall' if n > 1 else 'This tentative change date falls'} outside "
+                  f"the new series ({series.start} to {series.end}) and {'were' if n > 1 else 'was'} removed: "
+                  f"{'; '.join(dropped)}.")
+
+
+def load(contents, sample, region, request, filename, series_key, current_run, cps=None):
     """Load what the analyst asked for; on bad input keep what is on screen.
 
+    A new series (upload, sample, region) keeps the analyst's choices: the
+    option controls are left as they are, and the tentative change dates
+    that fall inside the new series stay on their dates.
+
     Returns, in order: series key, change dates, run id, region options,
-    region value, region row style, error message, url search, then the
-    control values (CONTROL_IDS order).
+    region value, region row style, error message, url search, the control
+    values (CONTROL_IDS order), then the change-date message.
     """
+    out = _load(contents, sample, region, request, filename, series_key, current_run, cps)
+    return out if len(out) == N_OUTPUTS else out + [no_update]
+
+
+def _load(contents, sample, region, request, filename, series_key, current_run, cps):
     svc = services()
     store = svc.store
     trig = ctx.triggered_id
@@ -82,7 +126,7 @@ def load(contents, sample, region, request, filename, series_key, current_run):
             key = put_series(store, series, label=rec.get("series_name", ""))
             options = rec["options"]
             cps = list(options.get("changepoint_priors") or [])
-            return [key, cps, run_id, [], None, hidden, "", no_update] + controls_from_run(rec, series)
+            return [key, cps, run_id, [], None, hidden, "", no_update] + controls_from_run(rec, series) + [""]
         if trig == ids.UPLOAD:
             data = decode_upload(contents, svc.max_upload_bytes)
             label = os.path.basename(filename or "uploaded file")
@@ -107,12 +151,14 @@ def load(contents, sample, region, request, filename, series_key, current_run):
         return [no_update] * 6 + [str(exc), no_update] + keep
     except OSError as exc:
         return [no_update] * 6 + [f"Could not read the sample file: {exc}", no_update] + keep
+    old_series, _ = get_series(store, series_key)
     key = put_series(store, series, raw_key=raw_key, regions=regions, region=region, label=series.name)
     options = [{"label": r, "value": r} for r in regions]
     style = {} if regions else hidden
     # the analyst's choices stay as they are on a new upload: defaults that depend
     # on the series (weekday, horizon, minimum segment) are "automatic" choices
-    return [key, [], None, options, region, style, "", ""] + keep
+    kept, note = carry_change_dates(old_series, series, cps)
+    return [key, kept, None, options, region, style, "", ""] + keep + [note]
 
 
 def describe(series_key):
@@ -151,6 +197,7 @@ def register(app):
         Output(ids.DATA_ERROR, "children"),
         Output(ids.URL, "search", allow_duplicate=True),
         *[Output(c, "value") for c in CONTROL_IDS],
+        Output(ids.CHANGE_ERROR, "children", allow_duplicate=True),
         Input(ids.UPLOAD, "contents"),
         Input(ids.SAMPLE, "value"),
         Input(ids.REGION, "value"),
@@ -158,8 +205,9 @@ def register(app):
         State(ids.UPLOAD, "filename"),
         State(ids.SERIES_KEY, "data"),
         State(ids.RUN_ID, "data"),
+        State(ids.CHANGEPOINTS, "data"),
         prevent_initial_call="initial_duplicate",
-    )(store_guarded(load, 8 + len(CONTROL_IDS), {6: lambda t: t}))
+    )(store_guarded(load, N_OUTPUTS, {6: lambda t: t}))
     app.clientside_callback(REQUEST_FROM_URL, Output(ids.REQUEST_RUN, "data"), Input(ids.URL, "search"),
                             State(ids.RUN_ID, "data"))
     app.callback(

@@ -40,6 +40,7 @@ PANEL_OUTPUTS = {
     "brief_class": (ids.BRIEF_LINK, "className"), "poll_ms": (ids.POLL, "interval"),
     "announce": (ids.ANNOUNCER, "children"),
     **{f"words_{key}": (words_id(graph), "children") for graph, key in CHART_WORDS},
+    "diag_note": (ids.DIAG_NOTE, "children"),
 }
 NAMES = tuple(PANEL_OUTPUTS)
 CONTROL_NAMES = ("poll_off", "stop_off", "brief_href", "brief_class")
@@ -278,7 +279,7 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, strip=
             "residuals": F.empty_figure(""), "diag_rows": diagnostics_table([]), "diag_summary": "", "headline": [], "summary": "",
             "warnings": [], "progress": "", "banner": "", "banner_class": "", "state": None, "poll_off": True,
             "stop_off": True, "brief_href": "#", "brief_class": "btn link-btn disabled", "poll_ms": POLL_MS,
-            "announce": "", **words_of(None, None)})
+            "announce": "", "diag_note": F.diagnostics_note(None), **words_of(None, None)})
     sd = series.to_dict()
     # a run on another series (e.g. a new file was loaded) is not drawn over this one
     if rec is not None and rec.get("series_hash") != series.content_hash():
@@ -301,6 +302,7 @@ def render(series_key, cps, style, scale, highlight, run_id, trace_param, strip=
         main=main, hist=hist, rates=F.rates_figure(snap, highlight_segment=highlight), trace=trace,
         trace_options=options, trace_value=trace_param, weekday=F.weekday_figure(snap), residuals=resid,
         diag_rows=diagnostics_table(F.diagnostics_rows(snap)), diag_summary=F.diagnostics_summary(snap) if snap else "",
+        diag_note=F.diagnostics_note(snap),
         headline=headline_children(snap), summary=summary_children(rec, snap), warnings=warning_children(snap),
         progress=wording.progress_line(rec, snap), banner=banner, banner_class=f"banner {banner_cls}",
         state=state, poll_ms=FIRST_POLL_MS if rec is not None and not controls["poll_off"] and not state["banded"]
@@ -467,6 +469,7 @@ def poll(_n, run_id, state, series_key, cps, highlight, trace_param, strip=None)
             out["residuals"], counts["resid"] = fig, len(fig.data)
         out["diag_rows"] = diagnostics_table(F.diagnostics_rows(snap))
         out["diag_summary"] = F.diagnostics_summary(snap)
+        out["diag_note"] = F.diagnostics_note(snap)
         out.update(words_of(sd, snap, trace_param=param, only=("trace", "residuals")))
     else:
         trace_names = state.get("trace_names")

@@ -119,25 +119,58 @@ STATUS_WORDS = {
 }
 
 
-def run_rows(_clicks, n_intervals, run_id, _poll_off=None):
-    """The run list, newest first: one link per run.
+def run_when(rec):
+    """When a run was made, to the second, in UTC ("2026-12-02 14:43:05 UTC"); "" when unknown."""
+    created = str(rec.get("created_at") or "")
+    if len(created) < 19:
+        return created
+    return f"{created[:10]} {created[11:19]} UTC"
 
-    Refreshed on demand, when the shown run changes or finishes (its poll
-    stops), and every few polls while a run streams.
+
+def run_words(rec):
+    """(series, segments, when, status) of a run-list entry, in words.
+
+    The segments part says when the analyst's tentative change dates set
+    them ("3 segments, 2 change dates set").
+    """
+    k = rec.get("segments")
+    seg = f"{k} segment{'s' if k != 1 else ''}" if isinstance(k, int) else "segments ?"
+    cps = (rec.get("options") or {}).get("changepoint_priors") or []
+    if isinstance(cps, list) and cps:
+        seg += f", {len(cps)} change date{'s' if len(cps) != 1 else ''} set"
+    status = STATUS_WORDS.get(rec.get("status"), str(rec.get("status")))
+    return str(rec.get("series_name") or "series"), seg, run_when(rec), status
+
+
+def run_rows(_clicks, n_intervals, run_id, _poll_off=None):
+    """The run list, newest first: one link per run, each reading differently.
+
+    An entry names the series, the segment count, when the run was made (to
+    the second) and its status; two runs that still read alike (made in the
+    same second) also show the start of their ids. Refreshed on demand, when
+    the shown run changes or finishes (its poll stops), and every few polls
+    while a run streams.
     """
     if ctx.triggered_id == ids.POLL and ctx.triggered[0]["prop_id"].endswith("n_intervals") and (n_intervals or 0) % 5:
         return no_update
+    team = services().team
+    recs = [r for r in services().runs.list(limit=300) if r.get("kind", "fit") == "fit"]
+    # comparisons and their member fits are shown by "How many segments?"
+    words = [run_words(r) + ((r.get("owner", ""),) if team else ()) for r in recs]
+    seen = {}
+    for w in words:
+        seen[w] = seen.get(w, 0) + 1
     items = []
-    for rec in services().runs.list(limit=300):
-        if rec.get("kind", "fit") != "fit":
-            continue  # comparisons and their member fits are shown by "How many segments?"
-        when = rec.get("created_at", "")[5:16].replace("T", " ")
-        status = STATUS_WORDS.get(rec["status"], rec["status"])
-        label = [html.Span(when, className="run-when"), html.Span(rec.get("series_name", ""), className="run-series"),
-                 html.Span(f"K={rec.get('segments')}", className="run-k"),
+    for rec, w in zip(recs, words):
+        series, seg, when, status = w[:4]
+        sep = html.Span(", ", className="visually-hidden")
+        label = [html.Span(series, className="run-series"), sep, html.Span(seg, className="run-k"), sep,
+                 html.Span(when, className="run-when"), sep,
                  html.Span(status, className=f"run-status st-{rec['status']}")]
-        if services().team:
-            label.append(html.Span(rec.get("owner", ""), className="run-owner"))
+        if team:
+            label += [sep, html.Span(f"by {w[4]}", className="run-owner")]
+        if seen[w] > 1:
+            label += [sep, html.Span(f"run {rec['id'][:8]}", className="run-id")]
         items.append(dcc.Link(label, href=f"/?run={rec['id']}",
                               className="run-item" + (" current" if rec["id"] == run_id else ""),
                               title=f"run {rec['id']}"))

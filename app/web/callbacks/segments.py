@@ -7,7 +7,8 @@ from dash import Input, Output, State, dcc, html, no_update
 from ...runs import SegmentComparison
 from .. import figures as F
 from .. import ids
-from ..context import services, store_guarded
+from ..context import get_series, services, store_guarded
+from .changes import DEFAULT_SPREAD, date_of
 from .running import control_states, named, submit_from_controls
 
 HIDDEN, SHOWN = {"display": "none"}, {}
@@ -62,8 +63,14 @@ def follow(_n, compare_id):
     return html.Div(words), chart, label, SHOWN if best else HIDDEN, True
 
 
-def adopt(n_clicks, compare_id, cps):
-    """Set the segment count to the recommendation; says so when the tentative change dates go."""
+def adopt(n_clicks, compare_id, cps, series_key=None):
+    """Set the segment count to the recommendation; says what happens to the tentative change dates.
+
+    Change dates set the segment count (one fewer than segments), so they
+    are kept when there are as many as the advice needs and removed
+    otherwise, and the message names each one removed (with its spread) so
+    the analyst can place them again.
+    """
     if not n_clicks or not compare_id:
         return no_update, no_update, no_update
     _, support = SegmentComparison(services().runs).state(compare_id)
@@ -71,12 +78,22 @@ def adopt(n_clicks, compare_id, cps):
     if best is None:
         return no_update, no_update, no_update
     k = best["segments"]
-    cps = cps if isinstance(cps, list) else []
-    if len(cps) == k - 1 or not cps:
-        return k, cps, f"Segments set to {k}."
+    cps = [c for c in cps if isinstance(c, dict) and isinstance(c.get("day"), (int, float))
+           and isinstance(c.get("spread_days", DEFAULT_SPREAD), (int, float))] if isinstance(cps, list) else []
     n = len(cps)
-    return k, [], (f"Segments set to {k}; the {n} tentative change date{'s were' if n != 1 else ' was'} removed "
-                   f"({k - 1} {'are' if k - 1 != 1 else 'is'} needed). Place {k - 1} again if you want them.")
+    if not cps:
+        return k, cps, f"Segments set to {k}."
+    if n == k - 1:
+        return k, cps, (f"Segments set to {k}; your {n} tentative change date{'s are' if n != 1 else ' is'} "
+                        "kept (they make that many segments).")
+    series, _ = get_series(services().store, series_key)
+    named = ", ".join(f"{date_of(series, c['day'])} ± {c.get('spread_days', DEFAULT_SPREAD):g} days"
+                      if series is not None else f"day {c['day']:g}" for c in cps)
+    return k, [], (f"Segments set to {k}. Removed your {n} tentative change date{'s' if n != 1 else ''} "
+                   f"({named}): {k} segments need {k - 1} change date{'s' if k - 1 != 1 else ''}, not {n}. "
+                   f"Place {k - 1} again if you want them." if k > 1 else
+                   f"Segments set to {k}. Removed your {n} tentative change date{'s' if n != 1 else ''} "
+                   f"({named}): one segment has no change date.")
 
 
 def strip(_n, compare_id):
@@ -107,7 +124,7 @@ def register(app):
         Output(ids.SEGMENTS, "value", allow_duplicate=True), Output(ids.CHANGEPOINTS, "data", allow_duplicate=True),
         Output(ids.COMPARE_STATUS, "children", allow_duplicate=True),
         Input(ids.ADOPT, "n_clicks"), State(ids.COMPARE_ID, "data"), State(ids.CHANGEPOINTS, "data"),
-        prevent_initial_call=True,
+        State(ids.SERIES_KEY, "data"), prevent_initial_call=True,
     )(store_guarded(adopt, 3, {2: lambda t: t}))
     app.callback(
         Output(ids.COMPARE_STRIP, "data"),

@@ -43,7 +43,7 @@ from .changes import changepoint_figure, changepoint_updates
 from .checks import residual_figure, residual_updates, weekday_figure
 from .common import (MS_PER_DAY, NO_FIT_NOTE, NOT_CONVERGED_NOTE, PROVISIONAL_NOTE, apply_updates, day_to_x,
                      empty_figure, is_final, status_note, x_to_day)
-from .diagnostics import ESS_MIN, RHAT_LIMIT, diagnostics_rows, diagnostics_summary
+from .diagnostics import ESS_MIN, RHAT_LIMIT, diagnostics_note, diagnostics_rows, diagnostics_summary
 from .main import (MAIN_SNAPSHOT_TRACES, MAIN_STATUS_ANNOTATION, MAIN_TRACE_INDEX, MAIN_TRACES,
                    centred_average_7day, main_figure, main_updates)
 from .rates import growth_text, rates_figure, segment_label
@@ -53,7 +53,7 @@ from .traces import trace_figure, trace_updates
 __all__ = [
     "ESS_MIN", "MAIN_SNAPSHOT_TRACES", "MAIN_STATUS_ANNOTATION", "MAIN_TRACE_INDEX", "MAIN_TRACES", "MS_PER_DAY",
     "NOT_CONVERGED_NOTE", "NO_FIT_NOTE", "PROVISIONAL_NOTE", "RHAT_LIMIT", "apply_updates", "centred_average_7day",
-    "changepoint_figure", "changepoint_updates", "day_to_x", "diagnostics_rows", "diagnostics_summary",
+    "changepoint_figure", "changepoint_updates", "day_to_x", "diagnostics_note", "diagnostics_rows", "diagnostics_summary",
     "empty_figure", "growth_text", "is_final", "main_figure", "main_updates", "rates_figure", "residual_figure",
     "residual_updates", "segment_label", "status_note", "support_figure", "trace_figure", "trace_updates",
     "weekday_figure",

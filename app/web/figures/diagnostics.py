@@ -9,11 +9,14 @@ from __future__ import annotations
 
 import re
 
+from bendline.inference.snapshots import ESS_MIN as _ENGINE_ESS_MIN
+from bendline.inference.snapshots import RHAT_MAX as _ENGINE_RHAT_MAX
+
 from .common import num
 
-#: Default convergence thresholds (used when the snapshot states none).
-RHAT_LIMIT = 1.01
-ESS_MIN = 400
+#: Default convergence thresholds (used when the snapshot states none): the engine's criterion.
+RHAT_LIMIT = _ENGINE_RHAT_MAX
+ESS_MIN = _ENGINE_ESS_MIN
 
 
 def thresholds(diag):
@@ -124,3 +127,26 @@ def diagnostics_summary(snapshot):
                 f"{snapshot.get('draws_requested', '?')} draws per chain ({draws} so far).")
     return (f"Not yet converged: {r_txt} (needs < {rhat_limit:g}), {e_txt} (needs ≥ {ess_min:g}); "
             f"still sampling ({draws} draws per chain so far).")
+
+
+def diagnostics_note(snapshot):
+    """One plain line under the convergence table: what R-hat and ESS mean, and the criterion used.
+
+    Parameters
+    ----------
+    snapshot : dict or None
+        The thresholds are the snapshot's (:func:`thresholds`); without a
+        snapshot, the engine's criterion.
+
+    Returns
+    -------
+    str
+        E.g. "R-hat compares the chains: below 1.01 means they agree (1 is
+        perfect). ESS is the number of independent draws the chains are worth:
+        at least 400 for every quantity, bulk and tail. A fit is converged when
+        both hold."
+    """
+    rhat_limit, ess_min = thresholds((snapshot or {}).get("diagnostics"))
+    return (f"R-hat compares the chains: below {rhat_limit:g} means they agree (1 is perfect). "
+            f"ESS is the number of independent draws the chains are worth: at least {ess_min:,.0f} for every "
+            "quantity, in the bulk and in the tails. A fit is converged when both hold.")

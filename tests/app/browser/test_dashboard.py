@@ -147,3 +147,83 @@ def test_a_run_survives_a_server_restart(tmp_path, page):
     finally:
         second.stop()
     assert page.console_errors == []
+
+
+def fit_in_view(page):
+    """(in view, detail): the Fit button lies inside the viewport and nothing covers its middle."""
+    return page.evaluate("""() => {
+        const b = document.getElementById('fit-button'), r = b.getBoundingClientRect();
+        const x = r.left + r.width / 2, y = r.top + r.height / 2;
+        const top = document.elementFromPoint(x, y);
+        const inside = r.top >= 0 && r.left >= 0 && r.bottom <= innerHeight && r.right <= innerWidth;
+        return [inside && top !== null && (top === b || b.contains(top)),
+                [Math.round(r.top), Math.round(r.bottom), innerHeight, top ? top.tagName + '#' + top.id : null]];
+    }""")
+
+
+def spreads_and_fields(page):
+    """The spread shadings as drawn ([x0, x1] dates) and as the fields say (date ± spread, as [x0, x1])."""
+    drawn = page.evaluate("""() => {
+        const gd = document.querySelector('#main-chart .js-plotly-plot');
+        return (gd.layout.shapes || []).filter(s => (s.name || '').endsWith('± spread'))
+            .map(s => [String(s.x0).slice(0, 10), String(s.x1).slice(0, 10)]);
+    }""")
+    dates = page.eval_on_selector_all("#change-date-list .change-date input", "els => els.map(e => e.value)")
+    spreads = page.eval_on_selector_all("#change-date-list input[type=number]", "els => els.map(e => +e.value)")
+    import datetime as dt
+
+    fields = []
+    for d, s in zip(dates, spreads):
+        day = dt.date.fromisoformat(d)
+        fields.append([str(day - dt.timedelta(days=s)), str(day + dt.timedelta(days=s))])
+    return sorted(drawn), sorted(fields)
+
+
+def test_fit_stays_in_view_and_the_spread_shading_is_no_handle(tmp_path, page):
+    data = tmp_path / "demo"
+    data.mkdir()
+    srv = Server(data, "--demo").start()
+    try:
+        for width, height in ((1280, 800), (1920, 1080)):
+            page.set_viewport_size({"width": width, "height": height})
+            page.goto(srv.url)
+            wait_for_graph(page)
+            wait_text(page, "#series-info", r"273 days")
+            ok, detail = fit_in_view(page)
+            assert ok, (width, height, detail)
+            page.mouse.move(width * 0.7, height * 0.5)
+            page.mouse.wheel(0, 4000)  # the page scrolled down to the lower panels: Fit is still there
+            page.wait_for_function("() => window.scrollY > 0")
+            ok, detail = fit_in_view(page)
+            assert ok, (width, height, "scrolled", detail)
+        page.set_viewport_size({"width": 1280, "height": 800})
+        page.goto(srv.url)
+        wait_for_graph(page)
+        wait_text(page, "#series-info", r"273 days")
+        page.click("#add-change-date")
+        first = change_dates_text(page)
+        page.wait_for_selector("#main-chart .layer-below .shapelayer path", state="attached")
+        time.sleep(1.0)
+        box = page.locator("#main-chart .layer-below .shapelayer path").first.bounding_box()
+        # a click inside the shading, away from the line in its middle, adds a change date there
+        page.mouse.click(box["x"] + box["width"] * 0.15, box["y"] + box["height"] * 0.6)
+        deadline = time.time() + 20
+        while len(change_dates_text(page).split()) < 2 and time.time() < deadline:
+            time.sleep(0.2)
+        both = change_dates_text(page).split()
+        assert len(both) == 2 and first in both, both
+        wait_for_graph(page)
+        time.sleep(1.0)
+        # a drag that starts on the shading (right of the first line) moves no shading out of step
+        box = page.locator("#main-chart .layer-below .shapelayer path").last.bounding_box()
+        x, y = box["x"] + box["width"] * 0.85, box["y"] + box["height"] * 0.4
+        page.mouse.move(x, y)
+        page.mouse.down()
+        page.mouse.move(x + 70, y + 20, steps=8)
+        page.mouse.up()
+        time.sleep(1.5)
+        drawn, fields = spreads_and_fields(page)
+        assert drawn == fields, (drawn, fields)
+        assert page.console_errors == []
+    finally:
+        srv.stop()
