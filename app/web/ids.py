@@ -71,3 +71,7 @@ TRACE = "trace-chart"
 TRACE_PARAM = "trace-parameter"
 WEEKDAY_FIG = "weekday-chart"
 RESIDUALS = "residual-chart"
+#: Deleting the run shown (a confirmation dialog, then a message)
+DELETE_RUN = "delete-run"
+DELETE_CONFIRM = "delete-run-confirm"
+DELETE_MESSAGE = "delete-run-message"

@@ -175,7 +175,15 @@ def run_section():
         html.Div(id=ids.PROGRESS, className="progress"),
         html.Details(open=True, className="section", children=[
             html.Summary("Runs"),
-            html.Button("Refresh", id=ids.REFRESH_RUNS, className="btn small", n_clicks=0),
+            html.Div(className="buttons", children=[
+                html.Button("Refresh", id=ids.REFRESH_RUNS, className="btn small", n_clicks=0),
+                html.Button("Delete the run shown", id=ids.DELETE_RUN, className="btn small", n_clicks=0,
+                            title="Delete the run shown and everything kept for it (a running fit is stopped "
+                                  "first); its owner or an admin"),
+            ]),
+            dcc.ConfirmDialog(id=ids.DELETE_CONFIRM,
+                              message="Delete the run shown, with its draws and result? This cannot be undone."),
+            html.Div(id=ids.DELETE_MESSAGE, className="field-hint", role="status"),
             html.Div(id=ids.RUN_LIST, className="run-list"),
         ]),
     ])

@@ -419,3 +419,18 @@ def test_the_convergence_table_says_what_r_hat_and_ess_mean(app):
         note = out[panels.NAMES.index("diag_note")]
         assert "R-hat compares the chains" in note and "ESS is the number of independent draws" in note
         assert f"below {RHAT_MAX:g}" in note and f"at least {ESS_MIN:,.0f}" in note
+
+
+def test_the_run_shown_is_deleted_after_its_confirmation(app):
+    """Delete asks first; then the run and its data are gone and the page shows no run."""
+    with app.server.test_request_context("/"):
+        key = _load_sample(app)
+        _, run_id, _ = running.fit(1, key, [], *controls(segments=2, growth_prior_pct=20, chains=4, draws=100, seed=2), None)
+        runs = app.server.config["BENDLINE"].runs
+        assert running.ask_delete(1, None) == (False, "No run is shown: open one from the list first.")
+        assert running.ask_delete(1, run_id) == (True, "")
+        assert running.delete(None, run_id) == (no_update, no_update, no_update)  # dialog cancelled
+        assert runs.get(run_id) is not None
+        assert running.delete(1, run_id) == ("", None, "The run was deleted.")
+        assert runs.get(run_id) is None and runs.result(run_id) is None
+        assert running.delete(1, run_id)[2] == "That run no longer exists."

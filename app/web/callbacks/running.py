@@ -113,6 +113,31 @@ def stop(n_clicks, run_id):
     return ""
 
 
+def ask_delete(n_clicks, run_id):
+    """The confirmation dialog, when a run is shown; otherwise a message."""
+    if not n_clicks:
+        return no_update, no_update
+    if not isinstance(run_id, str) or services().runs.get(run_id) is None:
+        return False, "No run is shown: open one from the list first."
+    return True, ""
+
+
+def delete(confirmed, run_id):
+    """Delete the run shown (after the dialog); returns (url search, run id, message)."""
+    if not confirmed or not isinstance(run_id, str):
+        return no_update, no_update, no_update
+    user, admin = current_user()
+    try:
+        gone = services().runs.delete(run_id, user=user, admin=admin)
+    except PermissionError as exc:
+        return no_update, no_update, str(exc)
+    except KeyError:
+        return "", None, "That run no longer exists."
+    if gone:
+        return "", None, "The run was deleted."
+    return no_update, no_update, "The run is stopping; it is deleted as soon as its worker stops."
+
+
 STATUS_WORDS = {
     "queued": "waiting in the queue", "running": "running", "converged": "converged",
     "unconverged": "finished, not converged", "stopped": "stopped", "failed": "failed",
@@ -187,6 +212,21 @@ def control_states():
 
 def register(app):
     controls = control_states()
+    app.callback(
+        Output(ids.DELETE_CONFIRM, "displayed"),
+        Output(ids.DELETE_MESSAGE, "children"),
+        Input(ids.DELETE_RUN, "n_clicks"),
+        State(ids.RUN_ID, "data"),
+        prevent_initial_call=True,
+    )(store_guarded(ask_delete, 2, {1: lambda t: t}))
+    app.callback(
+        Output(ids.URL, "search", allow_duplicate=True),
+        Output(ids.RUN_ID, "data", allow_duplicate=True),
+        Output(ids.DELETE_MESSAGE, "children", allow_duplicate=True),
+        Input(ids.DELETE_CONFIRM, "submit_n_clicks"),
+        State(ids.RUN_ID, "data"),
+        prevent_initial_call=True,
+    )(store_guarded(delete, 3, {2: lambda t: t}))
     app.callback(
         Output(ids.URL, "search", allow_duplicate=True),
         Output(ids.RUN_ID, "data", allow_duplicate=True),
