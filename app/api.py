@@ -136,20 +136,27 @@ def get_run(run_id):
     return jsonify(_run_view(runs, rec))
 
 
+def _as_owner(run_id, act):
+    """``act(runs, user, admin)`` on an existing run, or the 404/403 answer."""
+    runs = services().runs
+    if not valid_run_id(run_id) or runs.get(run_id) is None:
+        return None, _error(404, _NO_SUCH_RUN)
+    user, admin = current_user()
+    try:
+        return act(runs, user, admin), None
+    except KeyError:
+        return None, _error(404, _NO_SUCH_RUN)
+    except PermissionError as exc:
+        return None, _error(403, str(exc))
+
+
 @api.post("/runs/<run_id>/stop")
 def stop_run(run_id):
     """Ask a run to stop (its owner or an admin); the draws so far are kept."""
-    runs = services().runs
-    if not valid_run_id(run_id) or runs.get(run_id) is None:
-        return _error(404, _NO_SUCH_RUN)
-    user, admin = current_user()
-    try:
-        rec = runs.stop(run_id, user=user, admin=admin)
-    except KeyError:
-        return _error(404, _NO_SUCH_RUN)
-    except PermissionError as exc:
-        return _error(403, str(exc))
-    return jsonify(_run_view(runs, rec)), 202
+    rec, refused = _as_owner(run_id, lambda runs, user, admin: runs.stop(run_id, user=user, admin=admin))
+    if refused:
+        return refused
+    return jsonify(_run_view(services().runs, rec)), 202
 
 
 @api.delete("/runs/<run_id>")
@@ -159,16 +166,9 @@ def delete_run(run_id):
     200 ``{"deleted": true}`` when it is gone; 202 ``{"deleted": false,
     "status": "deleting"}`` while its worker stops (it then removes it).
     """
-    runs = services().runs
-    if not valid_run_id(run_id) or runs.get(run_id) is None:
-        return _error(404, _NO_SUCH_RUN)
-    user, admin = current_user()
-    try:
-        gone = runs.delete(run_id, user=user, admin=admin)
-    except KeyError:
-        return _error(404, _NO_SUCH_RUN)
-    except PermissionError as exc:
-        return _error(403, str(exc))
+    gone, refused = _as_owner(run_id, lambda runs, user, admin: runs.delete(run_id, user=user, admin=admin))
+    if refused:
+        return refused
     if gone:
         return jsonify({"id": run_id, "deleted": True}), 200
     return jsonify({"id": run_id, "deleted": False, "status": "deleting"}), 202

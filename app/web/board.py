@@ -268,19 +268,27 @@ def fit_all(n, contents, filename, by, *values):
     return f"{PREFIX}{board['id']}", ""
 
 
+def _owned_board(pathname, what):
+    """(boards, board id, user, None) when the signed-in user may change the board; else a message last."""
+    board_id = board_id_from_path(pathname)
+    boards = BoardService(services().runs)
+    board = boards.get(board_id) if board_id else None
+    user, admin = current_user()
+    if board is None:
+        return boards, board_id, user, NO_SUCH_BOARD
+    if board.get("owner") != user and not admin:
+        return boards, board_id, user, f"Only the board's owner or an admin can {what}."
+    return boards, board_id, user, None
+
+
 def add_release(n, contents, filename, pathname):
     if not n:
         return no_update, no_update
-    board_id = board_id_from_path(pathname)
-    if board_id is None or not contents:
+    if not contents:
         return no_update, "Choose the new release's file first."
-    boards = BoardService(services().runs)
-    board = boards.get(board_id)
-    user, admin = current_user()
-    if board is None:
-        return no_update, NO_SUCH_BOARD
-    if board.get("owner") != user and not admin:
-        return no_update, "Only the board's owner or an admin can add a release."
+    boards, board_id, user, refused = _owned_board(pathname, "add a release")
+    if refused:
+        return no_update, refused
     try:
         data, label = _file(contents, filename)
         boards.add_release(board_id, data, label, owner=user)
@@ -294,14 +302,9 @@ def add_release(n, contents, filename, pathname):
 def refit_failed(n, pathname):
     if not n:
         return no_update, no_update
-    board_id = board_id_from_path(pathname)
-    boards = BoardService(services().runs)
-    board = boards.get(board_id) if board_id else None
-    user, admin = current_user()
-    if board is None:
-        return no_update, NO_SUCH_BOARD
-    if board.get("owner") != user and not admin:
-        return no_update, "Only the board's owner or an admin can refit its series."
+    boards, board_id, user, refused = _owned_board(pathname, "refit its series")
+    if refused:
+        return no_update, refused
     try:
         done = boards.refit(board_id, owner=user)
     except QueueUnavailable:
