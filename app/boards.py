@@ -305,10 +305,11 @@ def _changes(row, result, before_row, before_result):
     row["growth_pct_before"] = before_row.get("growth_pct_median")
     if result is None or before_result is None:
         return
-    old = before_result.get("changepoints") or []
+    old = [(o.get("q05_date"), o.get("q95_date")) for o in before_result.get("changepoints") or []]
     for cp in result.get("changepoints") or []:
-        if not any(o.get("q05_date") <= cp.get("median_date") <= o.get("q95_date") for o in old):
-            row["new_change_date"] = cp.get("median_date")  # the latest one that is new
+        date = cp.get("median_date")
+        if date and not any(lo and hi and lo <= date <= hi for lo, hi in old):
+            row["new_change_date"] = date  # the latest one that is new
     last = ((before_result.get("band") or {}).get("dates") or [None])[-1]
     then, now = _trend_at(before_result, last), _trend_at(result, last)
     if then and now:
