@@ -78,15 +78,20 @@ def test_a_board_from_upload_to_next_weeks_release(server, page, tmp_path):
     assert shown == sorted(shown)
 
     # open Orlund in the dashboard, refit it with two segments; the board shows the new run
-    old_href = page.get_attribute("tr:has(th:has-text('Orlund')) a", "href")
+    old_run = page.get_attribute("tr:has(th:has-text('Orlund')) a", "href").split("run=")[1]
     page.click("tr:has(th:has-text('Orlund')) a")
     wait_for_graph(page)
+    page.wait_for_function(f"() => new URLSearchParams(location.search).get('run') === '{old_run}'")
+    wait_finished(page)  # the board's run is loaded into the page (its status, exports), controls restored
     page.fill("#segments", "2")
     page.press("#segments", "Enter")
     page.click("#fit-button")
-    wait_finished(page)
+    # the new run's id in the address (the old run, already finished, was shown until then)
+    page.wait_for_function(f"() => /run=[0-9a-f]{{16}}/.test(location.search) && !location.search.includes('{old_run}')",
+                           timeout=60000)
     new_run = re.search(r"run=([0-9a-f]{16})", page.url).group(1)
-    assert f"run={new_run}" != old_href
+    assert new_run != old_run
+    wait_finished(page)
     page.goto(f"{server.url}/board/{board_id}")
     page.wait_for_selector(f"a[href='/?run={new_run}']", timeout=30000)
 
