@@ -42,7 +42,11 @@ def _sign_in(page, url, name, password):
     page.fill("#name", name)
     page.fill("#password", password)
     page.click("button[type=submit]")
-    wait_for_graph(page)
+    try:
+        wait_for_graph(page)
+    except Exception as exc:  # say where the page stood: the address, its text, its console
+        raise AssertionError(f"no main chart after signing in as {name}: at {page.url}; page text "
+                             f"{page.inner_text('body')[:300]!r}; console errors {page.console_errors[:3]}") from exc
     assert f"Signed in as {name}" in page.inner_text(".header")
 
 
