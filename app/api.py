@@ -204,6 +204,21 @@ def _board_answer(board, status):
     return response
 
 
+def _as_board_owner(board_id, what):
+    """(BoardService, user, None) when the signed-in user may ``what`` the board; else the 404/403 answer last."""
+    from .boards import BoardService
+
+    boards = BoardService(services().runs)
+    user, admin = current_user()
+    try:
+        boards.owned(board_id if valid_run_id(board_id) else None, user, admin, what)
+    except KeyError:
+        return boards, user, _error(404, _NO_SUCH_BOARD)
+    except PermissionError as exc:
+        return boards, user, _error(403, str(exc))
+    return boards, user, None
+
+
 @api.post("/boards")
 def create_board():
     """A board from a long-format file: every series fitted; ``spec`` holds ``by`` and the fit options."""
@@ -245,15 +260,9 @@ def get_board(board_id):
 @api.post("/boards/<board_id>/releases")
 def add_release(board_id):
     """The next release of a board's file (its owner or an admin): every series is fitted again."""
-    from .boards import BoardService
-
-    boards = BoardService(services().runs)
-    board = boards.get(board_id) if valid_run_id(board_id) else None
-    if board is None:
-        return _error(404, _NO_SUCH_BOARD)
-    user, admin = current_user()
-    if board.get("owner") != user and not admin:
-        return _error(403, "only the board's owner or an admin can add a release")
+    boards, user, refused = _as_board_owner(board_id, "add a release")
+    if refused:
+        return refused
     try:
         data, label, _by, _spec, _loader = _board_submission()  # the board's own by and spec are kept
         try:
@@ -275,15 +284,9 @@ def refit_board_series(board_id):
     default every series whose run failed or was stopped, with the board's
     own choices (``spec`` overrides them for these runs only).
     """
-    from .boards import BoardService
-
-    boards = BoardService(services().runs)
-    board = boards.get(board_id) if valid_run_id(board_id) else None
-    if board is None:
-        return _error(404, _NO_SUCH_BOARD)
-    user, admin = current_user()
-    if board.get("owner") != user and not admin:
-        return _error(403, "only the board's owner or an admin can refit its series")
+    boards, user, refused = _as_board_owner(board_id, "refit its series")
+    if refused:
+        return refused
     body = request.get_json(silent=True) if request.get_data(cache=True) else {}
     if not isinstance(body, dict):
         return _error(400, 'expected a JSON object such as {"series": ["North"], "spec": {"max_seconds": 900}}',

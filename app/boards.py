@@ -169,6 +169,23 @@ class BoardService:
         rec = self.runs.get(board_id)
         return rec if rec is not None and rec.get("kind") == "board" else None
 
+    def owned(self, board_id, user, admin, what):
+        """The board when ``user`` may change it (its owner or an admin).
+
+        Raises
+        ------
+        KeyError
+            No such board.
+        PermissionError
+            Someone else's board; the message says what only they may ``what``.
+        """
+        board = self.get(board_id)
+        if board is None:
+            raise KeyError(board_id)
+        if board.get("owner") != user and not admin:
+            raise PermissionError(f"only the board's owner or an admin can {what}")
+        return board
+
     def attach_refit(self, board_id, name, run_id):
         """Make ``run_id`` the current run of series ``name`` in the board's latest release."""
         with self.store.lock(f"board:{board_id}"):

@@ -272,12 +272,13 @@ def _owned_board(pathname, what):
     """(boards, board id, user, None) when the signed-in user may change the board; else a message last."""
     board_id = board_id_from_path(pathname)
     boards = BoardService(services().runs)
-    board = boards.get(board_id) if board_id else None
     user, admin = current_user()
-    if board is None:
+    try:
+        boards.owned(board_id, user, admin, what)
+    except KeyError:
         return boards, board_id, user, NO_SUCH_BOARD
-    if board.get("owner") != user and not admin:
-        return boards, board_id, user, f"Only the board's owner or an admin can {what}."
+    except PermissionError as exc:
+        return boards, board_id, user, f"{str(exc)[0].upper()}{str(exc)[1:]}."
     return boards, board_id, user, None
 
 

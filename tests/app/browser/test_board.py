@@ -12,23 +12,12 @@ from __future__ import annotations
 import re
 import urllib.request
 
-import pytest
-
-from .conftest import ROOT, Server, wait_for_graph
+from .conftest import ROOT, wait_for_graph
 from .test_accessibility import assert_no_violations, wait_finished
 
 REGIONS = f"{ROOT}/sample_series/regions_long.csv"
 SMALL = (("chains", "2"), ("draws", "20"), ("max-draws", "20"))
 FIT_TIMEOUT_MS = 240_000
-
-
-@pytest.fixture
-def server(tmp_path):
-    data = tmp_path / "data"
-    data.mkdir()
-    srv = Server(data).start()
-    yield srv
-    srv.stop()
 
 
 def _releases(tmp_path):
