@@ -45,6 +45,8 @@ from .sinks import MemorySink
 #: trap mode (common practice, no source: a mode 20 log-units down carries
 #: about e^-20 of the mass).
 STUCK_GAP = 20.0
+#: Halvings of a start's jitter before it falls back to its mode (:func:`_spread_starts`).
+START_HALVINGS = 8
 MAX_LEAPFROG = 256
 #: Iterations between change-date relocations (:mod:`inference.relocate`) in
 #: warm-up, and in sampling when warm-up saw change dates move far (separated
@@ -207,16 +209,43 @@ def start(ctx):
     ctx.timings["init_seconds"] = ctx.clock() - ctx.t0
     if ctx.over_budget():
         return None, None
-    good = modes[mode_lp >= mode_lp[0] - STUCK_GAP]
-    starts = good[np.arange(C) % good.shape[0]]
-    starts = starts + ctx.rng_init.standard_normal((C, model.dim)) @ chol.T
-    state = init_state(ctx.target, starts)
-    bad = ~np.isfinite(state.log_density)
-    if np.any(bad):
-        starts[bad] = modes[0]
-        state = init_state(ctx.target, starts)
+    keep = mode_lp >= mode_lp[0] - STUCK_GAP
+    good, good_lp = modes[keep], mode_lp[keep]
+    base, base_lp = good[np.arange(C) % good.shape[0]], good_lp[np.arange(C) % good.shape[0]]
+    state = init_state(ctx.target, _spread_starts(ctx, base, base_lp, chol))
     ctx.progress.mode_lp = float(mode_lp[0])
     return state, chol
+
+
+def _spread_starts(ctx, base, base_lp, chol):
+    """Starts scattered around the modes by the Laplace spread, none far below its mode.
+
+    Over-dispersed starts are what let R-hat see a chain that has not found
+    its way (Gelman & Rubin 1992). The Laplace factor is a poor guide along
+    flat directions (a spare change date in a straight stretch): there its
+    floored curvature gives a spread of many series lengths, and a start
+    drawn at full scale can land thousands of log-units down, where the
+    chain drifts to a near-zero dispersion and crawls back over hundreds of
+    iterations (measured on daily_admissions.csv with K = 4). So each start's
+    jitter is halved until its log density is within ``START_GAP`` of its
+    mode's (at most ``START_HALVINGS`` times; then the mode itself).
+    """
+    C, D = base.shape
+    noise = ctx.rng_init.standard_normal((C, D)) @ chol.T
+    gap = max(STUCK_GAP, float(D))
+    starts = base + noise
+    scale = np.ones(C)
+    for _ in range(START_HALVINGS):
+        lp = ctx.model.log_density(starts)
+        far = ~(np.isfinite(lp) & (lp >= base_lp - gap))
+        if not far.any():
+            return starts
+        scale[far] *= 0.5
+        starts[far] = base[far] + scale[far, None] * noise[far]
+    lp = ctx.model.log_density(starts)
+    far = ~(np.isfinite(lp) & (lp >= base_lp - gap))
+    starts[far] = base[far]
+    return starts
 
 
 def warmup(ctx, state, chol):
@@ -270,7 +299,7 @@ def warmup(ctx, state, chol):
         if ended_by:
             break
         if kind == "slow":
-            stuck = _stuck_chains(np.array(win_lp))
+            stuck = _stuck_chains(np.array(win_lp), against="best")
             if np.any(stuck):
                 donors = rng.choice(np.flatnonzero(~stuck), size=int(stuck.sum()))
                 pos = state.position.copy()
@@ -417,17 +446,28 @@ def _whiten(chol, x):
     return solve_triangular(chol, x.T, lower=True).T
 
 
-def _stuck_chains(lp_window):
-    """Chains whose mean log density in a window is far below the median chain's.
+def _stuck_chains(lp_window, against="median"):
+    """Chains whose mean log density in a window is far below the median (or best) chain's.
 
     Parameters
     ----------
     lp_window : numpy.ndarray, shape (k, C)
+    against : {"median", "best"}
+        ``"median"`` (after warm-up, where a chain is dropped): never flags a
+        majority, since most chains below the rest is a disagreement to
+        report, not a trap. ``"best"`` (in warm-up, where a chain is only
+        restarted from a good one): any chain far below the best chain, so a
+        majority that started poorly is brought back too.
     """
     lp = np.where(np.isfinite(lp_window), lp_window, -1e300)
     means = lp.mean(axis=0)
     spread = float(np.median(lp.std(axis=0))) if lp.shape[0] > 1 else 0.0
     gap = max(STUCK_GAP, 6.0 * spread)
+    if against == "best":
+        # the spread of the good chains only: a chain still climbing has a wide one
+        good = means >= means.max() - gap
+        spread = float(np.median(lp[:, good].std(axis=0))) if lp.shape[0] > 1 else 0.0
+        return means < means.max() - max(STUCK_GAP, 6.0 * spread)
     stuck = means < np.median(means) - gap
     if stuck.sum() * 2 > lp.shape[1]:  # never drop a majority; that is non-convergence
         return np.zeros(lp.shape[1], dtype=bool)

@@ -118,6 +118,42 @@ def test_stuck_chains_are_found_and_a_majority_never_dropped():
     assert not _stuck_chains(ok).any()
 
 
+def test_in_warmup_chains_far_below_the_best_are_restarted_even_a_majority():
+    # Warm-up only restarts a chain from a good one, so a majority that
+    # started poorly (seen on daily_admissions.csv with K = 4: six of eight
+    # chains hundreds of log-units down) is brought back; chains close to the
+    # best are left alone.
+    lp = np.random.default_rng(2).normal(-100, 3, (50, 8))
+    lp[:, 3:] -= 150
+    assert list(np.flatnonzero(_stuck_chains(lp, against="best"))) == [3, 4, 5, 6, 7]
+    ok = np.random.default_rng(3).normal(-100, 3, (50, 8))
+    assert not _stuck_chains(ok, against="best").any()
+    climbing = ok.copy()
+    climbing[:, 0] = np.linspace(-400, -100, 50)  # a chain still climbing: wide, far below on average
+    assert list(np.flatnonzero(_stuck_chains(climbing, against="best"))) == [0]
+
+
+def test_starts_stay_near_their_mode_where_the_laplace_spread_is_flat(small_series):
+    # A flat direction of the Laplace factor (here: every coordinate scaled
+    # by 50) would throw starts far down; each start's jitter is halved
+    # until it is within the gap of its mode.
+    from types import SimpleNamespace
+
+    from bendline.inference.model import TrendModel
+    from bendline.inference.spec import ModelSpec
+
+    import bendline.inference.driver as drv
+
+    model = TrendModel(small_series, ModelSpec(segments=2))
+    modes, lp, chol = drv.find_starts(model, np.random.default_rng(0))
+    base = np.repeat(modes[:1], 8, axis=0)
+    ctx = SimpleNamespace(model=model, rng_init=np.random.default_rng(1))
+    starts = drv._spread_starts(ctx, base, np.repeat(lp[:1], 8), chol * 50.0)
+    start_lp = model.log_density(starts)
+    assert np.all(start_lp >= lp[0] - max(drv.STUCK_GAP, model.dim))
+    assert np.ptp(starts, axis=0).max() > 0  # still spread, not all at the mode
+
+
 def test_a_chain_found_stuck_after_warmup_is_dropped_and_reported(small_series, monkeypatch):
     # The detection itself is tested above; here the run's wiring: a chain
     # flagged after warm-up leaves the run, the sink and the counts, and the
@@ -127,9 +163,9 @@ def test_a_chain_found_stuck_after_warmup_is_dropped_and_reported(small_series, 
     real = drv._stuck_chains
     calls = {"n": 0}
 
-    def flag_chain_0_after_warmup(lp_window):
+    def flag_chain_0_after_warmup(lp_window, against="median"):
         calls["n"] += 1
-        out = real(lp_window)
+        out = real(lp_window, against)
         if lp_window.shape[0] == 6:  # the final fast window of the plan below
             out = out.copy()
             out[0] = True
