@@ -23,6 +23,12 @@ import numpy as np
 from .conditional import design, linear_index
 from .hmc import safe_cholesky
 
+#: Largest variance the start preconditioner gives any direction, in the
+#: sampler's unconstrained coordinates (log levels, knot-gap logits, log
+#: dispersion): a standard deviation of 2 there already spans a factor of
+#: e^4 in a level or most of a knot's range (common practice, no source).
+MAX_START_VARIANCE = 4.0
+
 
 def random_knots(model, rng, count):
     """Random feasible knot placements, shape (count, K-1), in intervals."""
@@ -141,7 +147,11 @@ def laplace_chol(model, theta, ridge=1e-6):
     The Hessian is a central difference of the exact gradient, with a wide
     step (0.05) in the knot coordinates, where the log density has kinks at
     whole intervals, and 0.01 elsewhere. Eigenvalues are floored so the result
-    is always a valid covariance.
+    is always a valid covariance, and no direction gets a variance above
+    :data:`MAX_START_VARIANCE` (a spare change date in a straight stretch
+    is nearly flat at the mode, and its Laplace variance would otherwise be
+    thousands, which first throws the starts far off and then shrinks the
+    first step size to a thousandth).
     """
     D = model.dim
     h = np.full(D, 0.01)
@@ -154,7 +164,7 @@ def laplace_chol(model, theta, ridge=1e-6):
     w, V = np.linalg.eigh(-H)
     if not np.all(np.isfinite(w)):
         return np.eye(D) * 0.1
-    w = np.maximum(w, max(float(np.abs(w).max()) * 1e-6, ridge))
+    w = np.maximum(w, max(float(np.abs(w).max()) * 1e-6, ridge, 1.0 / MAX_START_VARIANCE))
     cov = (V / w) @ V.T
     return safe_cholesky(cov)
 

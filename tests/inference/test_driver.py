@@ -180,3 +180,24 @@ def test_a_chain_found_stuck_after_warmup_is_dropped_and_reported(small_series, 
     assert final["chains"] == 5
     assert sink.read()[0].shape[0] == 5
     assert calls["n"] == 2  # once at the slow window's end, once after warm-up
+
+
+def test_the_start_preconditioner_caps_flat_directions():
+    # daily_admissions.csv with K = 4 has a spare change date nearly flat at
+    # the mode; its Laplace variance was in the thousands (threw starts far
+    # off, shrank the first step size a thousandfold). No direction may now
+    # exceed the cap, and the directions the data pin down keep their scale.
+    import os
+
+    from bendline.inference.init import find_starts
+    from bendline.inference.model import TrendModel
+    from bendline.inference.reader import read_series
+    from bendline.inference.spec import ModelSpec
+
+    path = os.path.join(os.path.dirname(__file__), "..", "..", "sample_series", "daily_admissions.csv")
+    model = TrendModel(read_series(path), ModelSpec(segments=4))
+    # the start-search stream of a run with seed 2 (as driver.run makes it): uncapped, a variance of 204
+    _, _, chol = find_starts(model, np.random.default_rng(np.random.SeedSequence(2).spawn(3)[1]))
+    var = np.linalg.eigvalsh(chol @ chol.T)
+    assert var.max() <= 4.0 * (1 + 1e-9)  # init.MAX_START_VARIANCE: sd 2 at most
+    assert var.min() < 1e-2  # the weekday effects and levels are tightly pinned, not flattened to the cap
