@@ -29,9 +29,13 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 from cases import HARD_CASES  # noqa: E402
 
-#: (window, bins, scoring steps); the first is the setting before 2026-12-02,
-#: the last the one kept.
-SETTINGS = [(24, 64, 2), (24, 32, 2), (24, 64, 1), (16, 64, 2), (12, 64, 2), (32, 64, 2), (16, 32, 1)]
+#: (window, bins, scoring steps, share of whole-range lattices, points across
+#: the range): the first is the setting before 2026-12-02, the next the one
+#: kept on 2026-12-02 (local windows only), the others whole-range lattices
+#: (2026-12-03), the kept one marked in inference/relocate.py.
+SETTINGS = [(24, 64, 2, 0.0, 0), (16, 32, 1, 0.0, 0), (16, 32, 1, 0.5, 10),
+            (16, 32, 1, 1.0, 6), (16, 32, 1, 1.0, 8), (16, 32, 1, 1.0, 10), (16, 32, 1, 1.0, 12),
+            (16, 32, 1, 1.0, 16), (16, 32, 1, 1.0, 24)]
 
 
 def posterior_draws(seed):
@@ -51,13 +55,15 @@ def posterior_draws(seed):
     return model, positions.reshape(-1, model.dim)
 
 
-def measure(model, draws, window, bins, steps, moves, seed, chains=8):
+def measure(model, draws, window, bins, steps, moves, seed, chains=8, whole=None, points=None):
     import bendline.inference.relocate as rel
     from bendline.inference.conditional import Binned
 
     binned = Binned.of(model, max_bins=bins)
-    old_steps = rel.SCORING_STEPS
+    old = rel.SCORING_STEPS, rel.WHOLE_SHARE, rel.RANGE_POINTS
     rel.SCORING_STEPS = steps
+    rel.WHOLE_SHARE = old[1] if whole is None else whole
+    rel.RANGE_POINTS = (points or old[2])
     try:
         rng = np.random.default_rng(seed)
         seconds, jump, far = 0.0, 0.0, 0
@@ -73,7 +79,7 @@ def measure(model, draws, window, bins, steps, moves, seed, chains=8):
             jump += float((((after - before) * model.interval_days) ** 2).sum()) / chains
             far += int((info.moved_days > limit).sum())
     finally:
-        rel.SCORING_STEPS = old_steps
+        rel.SCORING_STEPS, rel.WHOLE_SHARE, rel.RANGE_POINTS = old
     ms = 1000.0 * seconds / moves
     return ms, jump / moves, far / (moves * chains)
 
@@ -87,9 +93,10 @@ def main():
     model, draws = posterior_draws(args.seed)
     print(f"Relocation move on daily_admissions.csv, K = 4: {args.moves} moves of 8 chains from "
           f"{draws.shape[0]} posterior draws per setting; load average {load[0]:.1f} / {load[1]:.1f} / {load[2]:.1f}")
-    for window, bins, steps in SETTINGS:
-        ms, jump, far = measure(model, draws, window, bins, steps, args.moves, seed=1)
-        print(f"  window {window:2d}, {bins:2d} bins, {steps} scoring step(s): {ms:5.2f} ms/move, "
+    for window, bins, steps, whole, points in SETTINGS:
+        ms, jump, far = measure(model, draws, window, bins, steps, args.moves, seed=1, whole=whole, points=points)
+        lattice = f"whole range {whole:.0%} ({points:2d} points)" if whole else "local windows only      "
+        print(f"  window {window:2d}, {bins:2d} bins, {steps} scoring step(s), {lattice}: {ms:5.2f} ms/move, "
               f"squared jump {jump:6.1f} day^2/move, far moves {far:.3f}, squared jump per ms {jump / ms:6.1f}")
 
 

@@ -11,11 +11,15 @@ coordinates hold them sorted).
 
 For every chain at once:
 
-1. Pick one of the K-1 change dates uniformly at random, a lattice spacing
-   ``h`` (log-uniform between a fraction of an interval and a share of the
-   series, independent of the state) and a window of ``G`` lattice points
-   ``tau + (k - s) h``, ``k = 0..G-1``, holding the current position at a
-   uniformly random index ``s``.
+1. Pick one of the K-1 change dates uniformly at random and a lattice
+   spacing ``h`` (independent of the state), and lay the lattice
+   ``tau + k h`` across the date's whole admissible range ``[m, n - m]``
+   (``m`` the minimum segment length): every point of the orbit that could be
+   feasible is a candidate, so a date can jump from one end of the series to
+   the other in one move. (:func:`lattice` can also lay a local window of
+   ``G`` points ``tau + (k - s) h`` holding the current position at a
+   uniformly random index ``s``; measured, it moved the dates a third as far
+   per millisecond, so it is off by default.)
 2. For each lattice point, replace the chosen date by it, sort, and carry
    the level coordinates ``b`` (levels and jumps) along: with ``D(knots)``
    and ``C(knots)`` the conditional posterior mode of the levels given all
@@ -32,9 +36,13 @@ For every chain at once:
 
 The maps ``T_m`` (move the chosen date by ``m h``, carry the levels as
 above) compose as ``T_m T_k = T_{m+k}``; ``D`` and ``C`` depend only on what
-the move leaves unchanged, so every member of the window sees the same window
-with the same probability (the moved date is picked with probability 1/(K-1)
-from either end, and the window's offset is uniform). Drawing a member in
+the move leaves unchanged, so every member of the lattice sees the same
+candidates: a whole-range lattice is the same set of feasible points from
+any of its members (it is anchored at the current point's index
+``floor((tau - m) / h) + 1`` and reaches past both ends), and a local window
+holds its members with the same probability (the moved date is picked with
+probability 1/(K-1) from either end, and the window's offset is uniform).
+Drawing a member in
 proportion to the density times the Jacobian is then the generalised Gibbs
 step of Liu & Sabatti (2000, "Generalised Gibbs sampler and multigrid Monte
 Carlo for Bayesian computation", Biometrika 87(2)) on a discrete group with
@@ -50,16 +58,26 @@ import numpy as np
 
 from .conditional import Binned, conditional_mode, dispersion, linear_index, offsets, z_from_knots
 
-#: Lattice points in one window, and the Fisher-scoring steps of the
+#: Lattice points in a local window, and the Fisher-scoring steps of the
 #: conditional mode that carries the levels (any deterministic guide keeps the
 #: move exact; a better one only raises acceptance). Chosen by expected
 #: squared jump of the change dates per millisecond of the move, measured
-#: from posterior draws of daily_admissions.csv with K = 4 (window 24, 64
-#: bins, 2 steps: 72 days^2/ms; window 16, 32 bins, 1 step: 117, with the
-#: share of far moves 0.126 -> 0.113); whole fits to the criterion took a
-#: median 18.7 s instead of 34 s (3 seeds, idle machine).
+#: from posterior draws of daily_admissions.csv with K = 4 (bench/relocation.py;
+#: window 24, 64 bins, 2 steps: 68-72 days^2/ms; window 16, 32 bins, 1 step:
+#: 100-117).
 WINDOW = 16
 SCORING_STEPS = 1
+#: Share of moves whose lattice spans a change date's whole admissible range
+#: (the rest use a local window), the points across that range, and the
+#: random stretch of their spacing. Measured the same way: whole-range
+#: lattices of 6 to 12 points moved the dates 280-320 days^2/ms against 100
+#: for local windows and 226 for half and half; whole fits of
+#: daily_admissions.csv converged in 800 draws instead of 2,300 (K = 4) and
+#: in 800-1,600 instead of reaching the 5,000-draw cap (K = 6). 10 points
+#: did best on whole K = 4 fits (3 seeds); 8 and 12 moved as far per ms.
+WHOLE_SHARE = 1.0
+RANGE_POINTS = 10
+RANGE_JITTER = (0.7, 1.4)
 #: Finest lattice spacing, in intervals.
 FINEST = 0.25
 
@@ -90,7 +108,7 @@ def move(rng, model, theta, lp, window=WINDOW, binned=None):
     lp : numpy.ndarray, shape (B,)
         Exact log density of ``theta``.
     window : int
-        Lattice points per window.
+        Lattice points per local window.
     binned : Binned, optional
         The model's binned counts (made here when not given).
 
@@ -101,22 +119,71 @@ def move(rng, model, theta, lp, window=WINDOW, binned=None):
     """
     B = theta.shape[0]
     j = rng.integers(0, model.K - 1, size=B)
-    fine, coarse = spacing_range(model, window)
-    # half the moves span the whole series, half are log-uniform in scale
-    h = np.where(rng.random(B) < 0.5, coarse, np.exp(rng.uniform(np.log(fine), np.log(coarse), size=B)))
-    s = rng.integers(0, window, size=B)
-    cand, member, log_jac = orbit(model, theta, j, h, s, window, binned)
-    flat = cand.reshape(B * window, -1)
+    _, _, tau = model.knot_layout(theta)
+    h, s, size = lattice(rng, model, tau[np.arange(B), j], window)
+    cand, member, log_jac = orbit(model, theta, j, h, s, size, binned)
+    flat = cand.reshape(B * size, -1)
     cand_lp = model.log_density(flat)
     log_w = knot_log_density(model, flat, cand_lp) + log_jac.ravel()  # times the map's Jacobian
-    log_w = np.where(member.ravel() & np.isfinite(log_w), log_w, -np.inf).reshape(B, window)
-    pick = np.argmax(log_w + rng.gumbel(size=(B, window)), axis=1)  # Gumbel-max draw
+    log_w = np.where(member.ravel() & np.isfinite(log_w), log_w, -np.inf).reshape(B, size)
+    pick = np.argmax(log_w + rng.gumbel(size=(B, size)), axis=1)  # Gumbel-max draw
     ok = np.isfinite(log_w[np.arange(B), pick])
-    chosen = np.arange(B) * window + pick
+    chosen = np.arange(B) * size + pick
     new_theta = np.where(ok[:, None], flat[chosen], theta)
     new_lp = np.where(ok, cand_lp[chosen], lp)
     dist = np.where(ok, np.abs(pick - s) * h, 0.0) * model.interval_days
-    return new_theta, new_lp, RelocateInfo(dist, window)
+    return new_theta, new_lp, RelocateInfo(dist, size)
+
+
+def lattice(rng, model, x, window=WINDOW):
+    """Spacing, index of the current point and window size of one move, for every chain.
+
+    A share :data:`WHOLE_SHARE` of the chains get a lattice across the whole
+    admissible range of a change date (``[m, n - m]``), aligned so that the
+    current point ``x`` sits at index ``floor((x - m) / h) + 1``: from any
+    other member ``x + k h`` the same positions come out, shifted by ``k``,
+    so the feasible candidates are the same set. The others get a local
+    window of ``size`` points holding ``x`` at a uniformly random index.
+    The spacings and the window size depend only on the random stream, never
+    on the state.
+
+    Returns
+    -------
+    h : numpy.ndarray, shape (B,)
+    s : numpy.ndarray of int, shape (B,)
+    size : int
+        Lattice points per chain (the same for all).
+    """
+    B = x.shape[0]
+    span = max(model.t_end - 2.0 * model.min_segment, 1e-9)
+    fine, coarse = spacing_range(model, window)
+    whole = rng.random(B) < WHOLE_SHARE
+    h_whole = span / RANGE_POINTS * np.exp(rng.uniform(*np.log(RANGE_JITTER), size=B))
+    # the rest: half span the series, half log-uniform in scale
+    h_local = np.where(rng.random(B) < 0.5, coarse, np.exp(rng.uniform(np.log(fine), np.log(coarse), size=B)))
+    h = np.where(whole, h_whole, h_local)
+    need = whole_range_size(model, h[whole].min()) if whole.any() else 0
+    size = max(need, window if not whole.all() else 0)
+    # a local window holds x at an index uniform over the whole window
+    s = np.where(whole, np.minimum(whole_range_index(model, x, h), size - 1), rng.integers(0, size, size=B))
+    return h, s, size
+
+
+def whole_range_index(model, x, h):
+    """Index of position ``x`` in its whole-range lattice of spacing ``h``.
+
+    The lattice's first point ``x - s h`` lies below the admissible range
+    (in ``[m - h, m)``), so from any member ``x + k h`` the index is ``s + k``,
+    and should rounding put it one off, the points that shift in or out are
+    outside the range either way.
+    """
+    return np.floor((x - model.min_segment) / h).astype(int) + 1
+
+
+def whole_range_size(model, h):
+    """Points in a whole-range lattice of spacing ``h``: past both ends, with one to spare for rounding."""
+    span = max(model.t_end - 2.0 * model.min_segment, 1e-9)
+    return int(np.ceil(span / h)) + 3
 
 
 def knot_log_density(model, theta, lp=None):

@@ -19,7 +19,7 @@ import pytest
 from bendline.inference.conditional import Binned, conditional_mode, design, linear_index, offsets
 from bendline.inference.init import find_starts
 from bendline.inference.model import TrendModel
-from bendline.inference.relocate import knot_log_density, move, orbit
+from bendline.inference.relocate import knot_log_density, move, orbit, whole_range_index, whole_range_size
 from bendline.inference.spec import ModelSpec
 
 SPECS = {
@@ -62,6 +62,43 @@ def test_every_member_of_a_window_generates_the_same_window(small_series, rng, n
             np.testing.assert_allclose(diff, diff[0], atol=1e-6)  # equal up to a constant
             checked += 1
     assert checked > B  # windows with several members were checked
+
+
+@pytest.mark.parametrize("name", list(SPECS))
+def test_a_whole_range_lattice_is_the_same_set_from_every_member(small_series, rng, name):
+    # The default lattice spans a change date's whole admissible range,
+    # anchored at the current point's index: every feasible member must see
+    # the same feasible candidates (positions and levels) with weights that
+    # differ by a constant, and the lattice must reach past both ends.
+    model = TrendModel(small_series, SPECS[name])
+    theta = _states(model, rng)
+    B = theta.shape[0]
+    j = rng.integers(0, model.K - 1, size=B)
+    h = rng.uniform(0.7, 1.4, size=B) * (model.t_end - 2 * model.min_segment) / 10
+    size = whole_range_size(model, h.min())
+    _, _, tau = model.knot_layout(theta)
+    x = tau[np.arange(B), j]
+    s = whole_range_index(model, x, h)
+    assert np.all(x - s * h < model.min_segment)  # below the range ...
+    assert np.all(x + (size - 1 - s) * h > model.t_end - model.min_segment)  # ... and past it
+    cand, member, log_jac = orbit(model, theta, j, h, s, size)
+    w = knot_log_density(model, cand.reshape(B * size, -1)).reshape(B, size) + log_jac
+    checked = 0
+    for b in range(B):
+        feasible = cand[b][member[b]]
+        for m in np.flatnonzero(member[b]):
+            pos = x[b] + (m - s[b]) * h[b]
+            _, _, tau_y = model.knot_layout(cand[b, m][None, :])
+            j_y = int(np.argmin(np.abs(tau_y[0] - pos)))
+            s_y = whole_range_index(model, np.array([tau_y[0, j_y]]), h[b:b + 1])
+            cand_y, member_y, log_jac_y = orbit(model, cand[b, m][None, :], np.array([j_y]), h[b:b + 1], s_y, size)
+            assert member_y[0].sum() == member[b].sum()
+            np.testing.assert_allclose(cand_y[0][member_y[0]], feasible, rtol=1e-7, atol=1e-7)
+            w_y = knot_log_density(model, cand_y[0]) + log_jac_y[0]
+            diff = w_y[member_y[0]] - w[b][member[b]]
+            np.testing.assert_allclose(diff, diff[0], atol=1e-6)
+            checked += 1
+    assert checked > 2 * B  # lattices with several members were checked
 
 
 @pytest.mark.parametrize("name", list(SPECS))
