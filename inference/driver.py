@@ -34,6 +34,7 @@ import numpy as np
 from scipy.linalg import solve_triangular
 
 from .snapshots import ESS_MIN, RHAT_MAX, Progress
+from .verdict import DIVERGENCE_SHARE
 from .conditional import Binned
 from .hmc import ChEES, DualAveraging, Params, State, Target, fisher_chol, init_state, step
 from .init import find_starts
@@ -66,6 +67,18 @@ FAR_MOVES_MULTIMODAL = 0.01
 #: reference problem crossed 1% and made sampling relocate every iteration
 #: (five times the run's time; measured with seed 12).
 FAR_MOVES_MIN = 4
+#: When sampling shows divergent transitions beyond the share the verdict
+#: tolerates (:data:`inference.verdict.DIVERGENCE_SHARE`, and at least
+#: :data:`SHRINK_MIN_DIVERGENCES`), the step size is multiplied by
+#: :data:`STEP_SHRINK`, the draws so far are discarded (they count as warm-up)
+#: and sampling starts again, at most :data:`MAX_STEP_SHRINKS` times; every
+#: kept draw then comes from one fixed kernel. Measured on an invented region
+#: whose spare change date reaches the series end: step 0.52 gave 31
+#: divergences in 3,200 draws, 0.31-0.37 gave none (common practice, as in
+#: raising a target acceptance after divergences; the factor is ours).
+STEP_SHRINK = 0.7
+MAX_STEP_SHRINKS = 2
+SHRINK_MIN_DIVERGENCES = 2
 #: Mean acceptance the step size is tuned to. Higher than the usual 0.8: the
 #: curvature-based metric (:func:`inference.hmc.fisher_chol`) fits the bulk
 #: well and a step tuned to 0.8 diverged where a spare change date nears a
@@ -354,6 +367,7 @@ def sample(ctx, state, tuning, ended_by):
     next_check = settings.snapshot_every
     diag = traces = None
     diag_at = -1  # draws at the last convergence check
+    shrinks = 0  # step-size reductions after divergences
 
     def flush():
         if block_pos:
@@ -383,6 +397,17 @@ def sample(ctx, state, tuning, ended_by):
             status = "stopped" if ended_by == "stop request" else "unconverged"
         elif n_draws >= max_draws:
             status, ended_by = "unconverged", "draw limit"
+        elif n_draws >= next_check and shrinks < MAX_STEP_SHRINKS and _too_many_divergences(
+                progress.divergent, n_draws * state.position.shape[0]):
+            # a smaller step, and sampling starts over with the kernel it makes
+            eps *= STEP_SHRINK
+            shrinks += 1
+            progress.shrink_step(n_draws)
+            ctx.warmup = W = W + n_draws
+            block_pos.clear()
+            block_lp.clear()
+            ctx.sink.reset(state.position.shape[0], model.param_names)
+            n_draws, next_check, diag, traces, diag_at = 0, settings.snapshot_every, None, None, -1
         elif n_draws >= next_check:
             flush()
             diag, traces = progress.check(ctx.sink.read()[0])
@@ -430,6 +455,11 @@ def _relocate(ctx, state):
     theta, lp, info = relocate_move(ctx.rng, ctx.model, state.position, state.log_density, binned=ctx.binned)
     ctx.progress.record_relocation(info)
     return State(theta, lp, ctx.target.grad(theta))
+
+
+def _too_many_divergences(divergences, transitions):
+    """True when sampling's divergent transitions are beyond what the verdict tolerates."""
+    return divergences >= SHRINK_MIN_DIVERGENCES and divergences > DIVERGENCE_SHARE * transitions
 
 
 def _next_check_gap(n_draws, diag, settings):

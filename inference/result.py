@@ -129,6 +129,7 @@ def build_result(model, settings, final, positions, rng, *, options=None, segmen
             "divergences": final["sampler"]["divergences"],
             "chains_dropped": final["sampler"]["chains_dropped"],
             "chains_restarted_in_warmup": final["sampler"]["chains_restarted_in_warmup"],
+            "step_size_reductions": final["sampler"].get("step_size_reductions", 0),
             "timings": final.get("timings"),
         },
         "changepoints": changepoints,

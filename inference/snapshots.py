@@ -44,6 +44,8 @@ class Progress:
         self.relocations = 0
         self.relocated = 0
         self.relocation_slots = 0
+        self.step_shrinks = 0
+        self.discarded_draws = 0
         self.gi = None
         if settings.gi_mean_days is not None:
             self.gi = (settings.gi_mean_days, settings.gi_sd_days)
@@ -54,6 +56,12 @@ class Progress:
         self.accept_n += 1
         if sampling:
             self.divergent += int(info.divergent.sum())
+
+    def shrink_step(self, discarded):
+        """Sampling restarts with a smaller step: its divergences so far go with its discarded draws."""
+        self.step_shrinks += 1
+        self.discarded_draws += int(discarded)
+        self.divergent = 0
 
     def record_relocation(self, info):
         """Count a change-date relocation and how many knots moved far.
@@ -114,6 +122,8 @@ class Progress:
                 "gradient_evaluations": int(self.n_grad),
                 "chains_dropped": list(self.dropped),
                 "chains_restarted_in_warmup": int(self.restarted),
+                "step_size_reductions": int(self.step_shrinks),
+                "draws_discarded_after_divergences": int(self.discarded_draws),
                 "relocation_moves": int(self.relocations),
                 "far_relocation_rate": _num(self.relocated / self.relocation_slots)
                 if self.relocation_slots else None,

@@ -142,6 +142,12 @@ def _fmt(v, fmt):
     return "–" if v is None else format(v, fmt)
 
 
+def _reductions(n):
+    if not n:
+        return "no"
+    return f"{n} time{'s' if n > 1 else ''}; the draws before the last reduction were discarded"
+
+
 def _diagnostics(view):
     diag = view.get("diagnostics") or {}
     rows = F.diagnostics_rows(view)
@@ -156,6 +162,7 @@ def _diagnostics(view):
         ("Chains", diag.get("chains")), ("Draws per chain", diag.get("draws_per_chain")),
         ("Chains dropped", ", ".join(str(c) for c in dropped) if dropped else "none"),
         ("Divergent transitions", diag.get("divergences")),
+        ("Step size reduced after divergences", _reductions(diag.get("step_size_reductions"))),
         ("Sampling time", f"{diag['seconds']:.1f} s" if isinstance(diag.get("seconds"), (int, float)) else "–"),
     ]
     fact_rows = "".join(f"<tr><th>{_e(k)}</th><td>{_e('–' if v is None else v)}</td></tr>" for k, v in facts)

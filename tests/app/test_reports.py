@@ -165,7 +165,8 @@ def test_csv_tables_parse_and_their_numbers_are_the_results(result):
         g = seg["growth_rate_per_day"]
         assert float(row["growth_rate_per_day_median"]) == g["median"]
         assert float(row["growth_rate_per_day_q05"]) == g["q05"]
-        assert float(row["growth_pct_per_day_median"]) == pytest.approx(100 * math.expm1(g["median"]))
+        # both numbers are stored to 6 significant digits, so they agree to about 1e-6 each
+        assert float(row["growth_pct_per_day_median"]) == pytest.approx(100 * math.expm1(g["median"]), rel=1e-5)
         assert float(row["prob_growing"]) == seg["prob_growing"]
         assert row["start_date"] == seg["start_date"] and row["status"] == "reportable"
         t = seg["doubling_time_days"] or {}
@@ -305,3 +306,11 @@ def test_report_cli_says_when_it_cannot_write(result, tmp_path, capsys):
     src.write_text(json.dumps(result))
     assert _run(str(src), "--html", str(tmp_path / "missing-folder" / "o.html")) == 1
     assert "cannot write the report" in capsys.readouterr().err
+
+
+def test_the_report_says_when_the_step_size_was_reduced_after_divergences(result, page):
+    assert "Step size reduced after divergences no" in Page(page).all_text
+    shrunk = copy.deepcopy(result)
+    shrunk["diagnostics"]["step_size_reductions"] = 2
+    text = Page(html_report(shrunk)).all_text
+    assert "Step size reduced after divergences 2 times; the draws before the last reduction were discarded" in text

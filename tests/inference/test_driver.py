@@ -6,6 +6,7 @@ import itertools
 import json
 
 import numpy as np
+import pytest
 
 from bendline.inference import SCHEMA_VERSION
 from bendline.inference.driver import _stuck_chains, run
@@ -214,3 +215,37 @@ def test_one_stray_far_move_does_not_make_sampling_relocate_every_iteration():
     assert drv.relocate_every(0, 0) == drv.RELOCATE_UNIMODAL
     assert drv.relocate_every(12, 96) == drv.RELOCATE_MULTIMODAL
     assert drv.relocate_every(5, 1000) == drv.RELOCATE_UNIMODAL  # many moves, a tiny share
+
+
+def test_divergences_in_sampling_shrink_the_step_and_the_draws_start_over(small_series, monkeypatch):
+    # Divergences are made frequent by lowering the energy error that marks
+    # one; sampling must shrink the step (at most MAX_STEP_SHRINKS times),
+    # discard what it drew with the larger one (those draws count as
+    # warm-up) and keep only draws of the final kernel. The trigger is the
+    # verdict's tolerated share (inference.verdict.DIVERGENCE_SHARE).
+    import bendline.inference.driver as drv
+    import bendline.inference.hmc as hmc
+
+    monkeypatch.setattr(hmc, "DIVERGENCE_THRESHOLD", 0.05)
+    settings = RunSettings(chains=4, draws=40, max_draws=40, seed=5, snapshot_every=20, warmup=80,
+                           snapshot_seconds=0, snapshot_summaries=False)
+    snaps, sink = _drain(small_series, settings)
+    last = snaps[-1]["sampler"]
+    assert last["step_size_reductions"] == drv.MAX_STEP_SHRINKS
+    assert last["draws_discarded_after_divergences"] >= 20 * drv.MAX_STEP_SHRINKS
+    assert snaps[-1]["draws_per_chain"] == sink.draws == 40  # only the final kernel's draws are kept
+    assert snaps[-1]["warmup_iterations"] == 80 + last["draws_discarded_after_divergences"]
+    # the same run (same warm-up, same tuned step) without the mechanism
+    monkeypatch.setattr(drv, "MAX_STEP_SHRINKS", 0)
+    before = _drain(small_series, settings)[0][-1]["sampler"]
+    assert before["step_size_reductions"] == 0 and before["draws_discarded_after_divergences"] == 0
+    assert last["step_size"] == pytest.approx(before["step_size"] * drv.STEP_SHRINK ** 2, rel=1e-5)
+
+
+def test_a_few_divergences_within_the_tolerated_share_do_not_shrink_the_step():
+    from bendline.inference.driver import _too_many_divergences
+    from bendline.inference.verdict import DIVERGENCE_SHARE
+
+    assert not _too_many_divergences(1, 400)  # a single one never does
+    assert not _too_many_divergences(3, int(3 / DIVERGENCE_SHARE))
+    assert _too_many_divergences(3, int(3 / DIVERGENCE_SHARE) - 1)
