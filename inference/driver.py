@@ -11,8 +11,9 @@ worker) drains the same generator. The stages are separate functions:
 passing the sampler's state and its :class:`Tuning` between them. The time
 budget counts the whole fit, from the start search on.
 
-The warm-up schedule is plain data (:func:`warmup_schedule`): a fast window
-for the step size, slow windows of doubling length at whose ends the dense
+The warm-up schedule is plain data
+(:func:`inference.schedule.warmup_schedule`): a fast window for the step
+size, slow windows of doubling length at whose ends the dense
 preconditioner is re-estimated from the pooled positions of all chains, and a
 final fast window. At each slow window's end, chains far below the others
 are restarted from copies of good chains (warm-up only); after warm-up any
@@ -33,13 +34,14 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.linalg import solve_triangular
 
-from .snapshots import ESS_MIN, RHAT_MAX, Progress
-from .verdict import DIVERGENCE_SHARE
 from .conditional import Binned
 from .hmc import ChEES, DualAveraging, Params, State, Target, fisher_chol, init_state, step
 from .init import find_starts
 from .relocate import move as relocate_move
+from .schedule import (MAX_STEP_SHRINKS, RELOCATE_WARMUP, STEP_SHRINK, default_warmup, next_check_gap,
+                       relocate_every, too_many_divergences, warmup_schedule)
 from .sinks import MemorySink
+from .snapshots import Progress
 
 #: A chain whose mean log density is this far below the median chain's (or
 #: six times the typical within-chain sd, whichever is larger) is stuck in a
@@ -49,77 +51,11 @@ STUCK_GAP = 20.0
 #: Halvings of a start's jitter before it falls back to its mode (:func:`_spread_starts`).
 START_HALVINGS = 8
 MAX_LEAPFROG = 256
-#: Iterations between change-date relocations (:mod:`inference.relocate`) in
-#: warm-up, and in sampling when warm-up saw change dates move far (separated
-#: modes) or not. A relocation costs about as much as a few HMC iterations;
-#: where the posterior has one mode it is insurance, where it has several it
-#: is what mixes them. Measured in bench/engine.py.
-RELOCATE_WARMUP = 6
-RELOCATE_MULTIMODAL = 1
-RELOCATE_UNIMODAL = 25
-#: Share of relocations in warm-up that moved a change date more than a tenth
-#: of the series, above which sampling relocates often (common practice, no
-#: source; measured: 0.1-0.3% on single-mode posteriors, 5-30% on posteriors
-#: with separated change-date modes).
-FAR_MOVES_MULTIMODAL = 0.01
-#: ... and at least this many far moves: with about a hundred relocations in
-#: the second half of warm-up, one stray far move on the single-mode
-#: reference problem crossed 1% and made sampling relocate every iteration
-#: (five times the run's time; measured with seed 12).
-FAR_MOVES_MIN = 4
-#: When sampling shows divergent transitions beyond the share the verdict
-#: tolerates (:data:`inference.verdict.DIVERGENCE_SHARE`, and at least
-#: :data:`SHRINK_MIN_DIVERGENCES`), the step size is multiplied by
-#: :data:`STEP_SHRINK`, the draws so far are discarded (they count as warm-up)
-#: and sampling starts again, at most :data:`MAX_STEP_SHRINKS` times; every
-#: kept draw then comes from one fixed kernel. Measured on an invented region
-#: whose spare change date reaches the series end: step 0.52 gave 31
-#: divergences in 3,200 draws, 0.31-0.37 gave none (common practice, as in
-#: raising a target acceptance after divergences; the factor is ours).
-STEP_SHRINK = 0.7
-MAX_STEP_SHRINKS = 2
-SHRINK_MIN_DIVERGENCES = 2
 #: Mean acceptance the step size is tuned to. Higher than the usual 0.8: the
 #: curvature-based metric (:func:`inference.hmc.fisher_chol`) fits the bulk
 #: well and a step tuned to 0.8 diverged where a spare change date nears a
 #: series end (measured on daily_admissions.csv with K = 4).
 TARGET_ACCEPT = 0.9
-
-
-def warmup_schedule(n):
-    """Window plan for ``n`` warm-up iterations.
-
-    Returns
-    -------
-    list of (kind, length)
-        ``("fast", k)`` adapts the step size only; ``("slow", k)`` also
-        re-estimates the preconditioner at its end. Lengths sum to ``n``.
-    """
-    first = max(5, int(0.15 * n))
-    last = max(5, int(0.1 * n))
-    middle = n - first - last
-    windows = [("fast", first)]
-    size = max(5, middle // 7)  # 1 + 2 + 4 units
-    left = middle
-    while left > 0:
-        k = size if left - size >= 2 * size else left
-        windows.append(("slow", k))
-        left -= k
-        size *= 2
-    windows.append(("fast", last))
-    return windows
-
-
-def default_warmup(model):
-    """Warm-up length by problem size (common practice, no source).
-
-    The start search hands warm-up a good point and preconditioner, and the
-    preconditioner is estimated from all chains pooled, so a short warm-up
-    suffices: 100 iterations plus 3 per coordinate (about 150 for K = 4 with
-    weekday effects). Measured by bench/engine.py: longer warm-ups did not
-    shorten the time to convergence.
-    """
-    return int(min(400, 100 + 3 * model.dim))
 
 
 def reserve_heap():
@@ -341,13 +277,6 @@ def warmup(ctx, state, chol):
     return state, Tuning(eps, chees.final(), chol, relocate_every(far_moves, moves)), ended_by
 
 
-def relocate_every(far_moves, moves):
-    """Sampling iterations between relocations, from the far moves seen late in warm-up."""
-    far = far_moves / moves if moves else 0.0
-    multimodal = far >= FAR_MOVES_MULTIMODAL and far_moves >= FAR_MOVES_MIN
-    return RELOCATE_MULTIMODAL if multimodal else RELOCATE_UNIMODAL
-
-
 def sample(ctx, state, tuning, ended_by):
     """Draw until the criterion holds and the requested draws are in; a generator of snapshots.
 
@@ -397,7 +326,7 @@ def sample(ctx, state, tuning, ended_by):
             status = "stopped" if ended_by == "stop request" else "unconverged"
         elif n_draws >= max_draws:
             status, ended_by = "unconverged", "draw limit"
-        elif n_draws >= next_check and shrinks < MAX_STEP_SHRINKS and _too_many_divergences(
+        elif n_draws >= next_check and shrinks < MAX_STEP_SHRINKS and too_many_divergences(
                 progress.divergent, n_draws * state.position.shape[0]):
             # a smaller step, and sampling starts over with the kernel it makes
             eps *= STEP_SHRINK
@@ -415,7 +344,7 @@ def sample(ctx, state, tuning, ended_by):
             if diag["converged"] and n_draws >= settings.draws:
                 status, ended_by = "converged", "criterion"
             else:
-                next_check = n_draws + _next_check_gap(n_draws, diag, settings)
+                next_check = n_draws + next_check_gap(n_draws, diag, settings)
         if status is None and (
             (not settings.snapshot_seconds and diag_at == n_draws)
             or (settings.snapshot_seconds and ctx.clock() - last_yield > settings.snapshot_seconds)
@@ -455,31 +384,6 @@ def _relocate(ctx, state):
     theta, lp, info = relocate_move(ctx.rng, ctx.model, state.position, state.log_density, binned=ctx.binned)
     ctx.progress.record_relocation(info)
     return State(theta, lp, ctx.target.grad(theta))
-
-
-def _too_many_divergences(divergences, transitions):
-    """True when sampling's divergent transitions are beyond what the verdict tolerates."""
-    return divergences >= SHRINK_MIN_DIVERGENCES and divergences > DIVERGENCE_SHARE * transitions
-
-
-def _next_check_gap(n_draws, diag, settings):
-    """Draws until the next convergence check, projected from this one.
-
-    Under convergence R-hat - 1 falls and ESS grows about in proportion to
-    the draws, so the draws still needed are projected from how far each
-    is from its threshold; the gap is at least ``snapshot_every`` and at most
-    the draws so far (a doubling), so an unconverged run is still checked
-    often enough.
-    """
-    rh = diag["rhat_max"]
-    ess = min(diag["ess_bulk_min"] or 0.0, diag["ess_tail_min"] or 0.0)
-    factor = max(
-        (rh - 1.0) / (0.9 * (RHAT_MAX - 1.0)) if rh is not None else 2.0,
-        1.05 * ESS_MIN / max(ess, 1.0),
-        settings.draws / n_draws,
-    )
-    gap = int(round(n_draws * (factor - 1.0)))
-    return int(min(max(gap, settings.snapshot_every), n_draws))
 
 
 def _whiten(chol, x):

@@ -209,12 +209,12 @@ def test_one_stray_far_move_does_not_make_sampling_relocate_every_iteration():
     # warm-up relocations, just over 1%, and relocated every iteration (five
     # times the run's time); separated modes give many more (measured: 12-47
     # of about 200 on daily_admissions.csv with K = 4 and 6 and boot::coal).
-    import bendline.inference.driver as drv
+    import bendline.inference.schedule as sch
 
-    assert drv.relocate_every(1, 96) == drv.RELOCATE_UNIMODAL
-    assert drv.relocate_every(0, 0) == drv.RELOCATE_UNIMODAL
-    assert drv.relocate_every(12, 96) == drv.RELOCATE_MULTIMODAL
-    assert drv.relocate_every(5, 1000) == drv.RELOCATE_UNIMODAL  # many moves, a tiny share
+    assert sch.relocate_every(1, 96) == sch.RELOCATE_UNIMODAL
+    assert sch.relocate_every(0, 0) == sch.RELOCATE_UNIMODAL
+    assert sch.relocate_every(12, 96) == sch.RELOCATE_MULTIMODAL
+    assert sch.relocate_every(5, 1000) == sch.RELOCATE_UNIMODAL  # many moves, a tiny share
 
 
 def test_divergences_in_sampling_shrink_the_step_and_the_draws_start_over(small_series, monkeypatch):
@@ -243,9 +243,9 @@ def test_divergences_in_sampling_shrink_the_step_and_the_draws_start_over(small_
 
 
 def test_a_few_divergences_within_the_tolerated_share_do_not_shrink_the_step():
-    from bendline.inference.driver import _too_many_divergences
+    from bendline.inference.schedule import too_many_divergences
     from bendline.inference.verdict import DIVERGENCE_SHARE
 
-    assert not _too_many_divergences(1, 400)  # a single one never does
-    assert not _too_many_divergences(3, int(3 / DIVERGENCE_SHARE))
-    assert _too_many_divergences(3, int(3 / DIVERGENCE_SHARE) - 1)
+    assert not too_many_divergences(1, 400)  # a single one never does
+    assert not too_many_divergences(3, int(3 / DIVERGENCE_SHARE))
+    assert too_many_divergences(3, int(3 / DIVERGENCE_SHARE) - 1)
