@@ -1,8 +1,8 @@
 """Relocation-move benchmark: how far the change dates jump per millisecond of the move.
 
 The relocation move (bendline/inference/relocate.py) is exact for any
-window, bin count and number of scoring steps of its conditional mode; these
-only trade cost against how far a move carries the change dates. This script
+lattice size, bin count and number of scoring steps of its conditional mode;
+these only trade cost against how far a move carries the change dates. This script
 fits ``daily_admissions.csv`` with K = 4 once (a spare change date, separated
 modes), then runs the move from posterior draws under each setting and
 prints, per setting: milliseconds per move (8 chains), the mean squared jump
@@ -29,13 +29,11 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 from cases import HARD_CASES  # noqa: E402
 
-#: (window, bins, scoring steps, share of whole-range lattices, points across
-#: the range): the first is the setting before 2026-12-02, the next the one
-#: kept on 2026-12-02 (local windows only), the others whole-range lattices
-#: (2026-12-03), the kept one marked in inference/relocate.py.
-SETTINGS = [(24, 64, 2, 0.0, 0), (16, 32, 1, 0.0, 0), (16, 32, 1, 0.5, 10),
-            (16, 32, 1, 1.0, 6), (16, 32, 1, 1.0, 8), (16, 32, 1, 1.0, 10), (16, 32, 1, 1.0, 12),
-            (16, 32, 1, 1.0, 16), (16, 32, 1, 1.0, 24)]
+#: (bins, scoring steps, lattice points across a change date's range). The
+#: local windows the move used before 2026-12-03 (16 points around the current
+#: position: 100 days^2/ms in that day's run, against 282-318 for 6 to 12
+#: points across the range) are no longer in the code.
+SETTINGS = [(64, 2, 10), (32, 1, 6), (32, 1, 8), (32, 1, 10), (32, 1, 12), (32, 1, 16), (32, 1, 24)]
 
 
 def posterior_draws(seed):
@@ -55,15 +53,13 @@ def posterior_draws(seed):
     return model, positions.reshape(-1, model.dim)
 
 
-def measure(model, draws, window, bins, steps, moves, seed, chains=8, whole=None, points=None):
+def measure(model, draws, bins, steps, points, moves, seed, chains=8):
     import bendline.inference.relocate as rel
     from bendline.inference.conditional import Binned
 
     binned = Binned.of(model, max_bins=bins)
-    old = rel.SCORING_STEPS, rel.WHOLE_SHARE, rel.RANGE_POINTS
-    rel.SCORING_STEPS = steps
-    rel.WHOLE_SHARE = old[1] if whole is None else whole
-    rel.RANGE_POINTS = (points or old[2])
+    old = rel.SCORING_STEPS, rel.RANGE_POINTS
+    rel.SCORING_STEPS, rel.RANGE_POINTS = steps, points
     try:
         rng = np.random.default_rng(seed)
         seconds, jump, far = 0.0, 0.0, 0
@@ -72,14 +68,14 @@ def measure(model, draws, window, bins, steps, moves, seed, chains=8, whole=None
             theta = draws[rng.integers(0, draws.shape[0], chains)]
             lp = model.log_density(theta)
             t0 = time.perf_counter()
-            new, _, info = rel.move(rng, model, theta, lp, window=window, binned=binned)
+            new, _, info = rel.move(rng, model, theta, lp, binned=binned)
             seconds += time.perf_counter() - t0
             _, _, before = model.knot_layout(theta)
             _, _, after = model.knot_layout(new)
             jump += float((((after - before) * model.interval_days) ** 2).sum()) / chains
             far += int((info.moved_days > limit).sum())
     finally:
-        rel.SCORING_STEPS, rel.WHOLE_SHARE, rel.RANGE_POINTS = old
+        rel.SCORING_STEPS, rel.RANGE_POINTS = old
     ms = 1000.0 * seconds / moves
     return ms, jump / moves, far / (moves * chains)
 
@@ -93,10 +89,9 @@ def main():
     model, draws = posterior_draws(args.seed)
     print(f"Relocation move on daily_admissions.csv, K = 4: {args.moves} moves of 8 chains from "
           f"{draws.shape[0]} posterior draws per setting; load average {load[0]:.1f} / {load[1]:.1f} / {load[2]:.1f}")
-    for window, bins, steps, whole, points in SETTINGS:
-        ms, jump, far = measure(model, draws, window, bins, steps, args.moves, seed=1, whole=whole, points=points)
-        lattice = f"whole range {whole:.0%} ({points:2d} points)" if whole else "local windows only      "
-        print(f"  window {window:2d}, {bins:2d} bins, {steps} scoring step(s), {lattice}: {ms:5.2f} ms/move, "
+    for bins, steps, points in SETTINGS:
+        ms, jump, far = measure(model, draws, bins, steps, points, args.moves, seed=1)
+        print(f"  {bins:2d} bins, {steps} scoring step(s), {points:2d} lattice points: {ms:5.2f} ms/move, "
               f"squared jump {jump:6.1f} day^2/move, far moves {far:.3f}, squared jump per ms {jump / ms:6.1f}")
 
 

@@ -16,10 +16,9 @@ For every chain at once:
    ``tau + k h`` across the date's whole admissible range ``[m, n - m]``
    (``m`` the minimum segment length): every point of the orbit that could be
    feasible is a candidate, so a date can jump from one end of the series to
-   the other in one move. (:func:`lattice` can also lay a local window of
-   ``G`` points ``tau + (k - s) h`` holding the current position at a
-   uniformly random index ``s``; measured, it moved the dates a third as far
-   per millisecond, so it is off by default.)
+   the other in one move. (Until 2026-12-03 the move laid a local window of
+   16 points around the current position instead; measured, it moved the
+   dates a third as far per millisecond.)
 2. For each lattice point, replace the chosen date by it, sort, and carry
    the level coordinates ``b`` (levels and jumps) along: with ``D(knots)``
    and ``C(knots)`` the conditional posterior mode of the levels given all
@@ -37,12 +36,10 @@ For every chain at once:
 The maps ``T_m`` (move the chosen date by ``m h``, carry the levels as
 above) compose as ``T_m T_k = T_{m+k}``; ``D`` and ``C`` depend only on what
 the move leaves unchanged, so every member of the lattice sees the same
-candidates: a whole-range lattice is the same set of feasible points from
-any of its members (it is anchored at the current point's index
-``floor((tau - m) / h) + 1`` and reaches past both ends), and a local window
-holds its members with the same probability (the moved date is picked with
-probability 1/(K-1) from either end, and the window's offset is uniform).
-Drawing a member in
+candidates: the lattice is the same set of feasible points from any of its
+members (it is anchored at the current point's index
+``floor((tau - m) / h) + 1`` and reaches past both ends; the moved date is
+picked with probability 1/(K-1) from either end). Drawing a member in
 proportion to the density times the Jacobian is then the generalised Gibbs
 step of Liu & Sabatti (2000, "Generalised Gibbs sampler and multigrid Monte
 Carlo for Bayesian computation", Biometrika 87(2)) on a discrete group with
@@ -58,28 +55,22 @@ import numpy as np
 
 from .conditional import Binned, conditional_mode, dispersion, linear_index, offsets, z_from_knots
 
-#: Lattice points in a local window, and the Fisher-scoring steps of the
-#: conditional mode that carries the levels (any deterministic guide keeps the
-#: move exact; a better one only raises acceptance). Chosen by expected
+#: Fisher-scoring steps of the conditional mode that carries the levels (any
+#: deterministic guide keeps the move exact; a better one only raises
+#: acceptance), chosen with the bin count (conditional.MAX_BINS) by expected
 #: squared jump of the change dates per millisecond of the move, measured
-#: from posterior draws of daily_admissions.csv with K = 4 (bench/relocation.py;
-#: window 24, 64 bins, 2 steps: 68-72 days^2/ms; window 16, 32 bins, 1 step:
-#: 100-117).
-WINDOW = 16
+#: from posterior draws of daily_admissions.csv with K = 4 (bench/relocation.py):
+#: 32 bins and 1 step moved them as far as 64 and 2, at 60% of the cost.
 SCORING_STEPS = 1
-#: Share of moves whose lattice spans a change date's whole admissible range
-#: (the rest use a local window), the points across that range, and the
-#: random stretch of their spacing. Measured the same way: whole-range
-#: lattices of 6 to 12 points moved the dates 280-320 days^2/ms against 100
-#: for local windows and 226 for half and half; whole fits of
-#: daily_admissions.csv converged in 800 draws instead of 2,300 (K = 4) and
-#: in 800-1,600 instead of reaching the 5,000-draw cap (K = 6). 10 points
-#: did best on whole K = 4 fits (3 seeds); 8 and 12 moved as far per ms.
-WHOLE_SHARE = 1.0
+#: Lattice points across a change date's admissible range, and the random
+#: stretch of their spacing. Measured the same way: 6 to 12 points moved the
+#: dates 280-320 days^2/ms against 100 for the earlier local windows of 16
+#: points (and 226 for half and half); whole fits of daily_admissions.csv
+#: converged in about 800 draws instead of 2,300 (K = 4) and in 800-1,600
+#: instead of reaching the 5,000-draw cap (K = 6). 10 points did best on
+#: whole K = 4 fits (3 seeds); 8 and 12 moved as far per millisecond.
 RANGE_POINTS = 10
 RANGE_JITTER = (0.7, 1.4)
-#: Finest lattice spacing, in intervals.
-FINEST = 0.25
 
 
 @dataclass(frozen=True)
@@ -87,17 +78,10 @@ class RelocateInfo:
     """What one move did, per chain."""
 
     moved_days: np.ndarray  # (B,) distance the chosen knot moved, in days
-    window: int
+    points: int  # lattice points per chain
 
 
-def spacing_range(model, window=WINDOW):
-    """(finest, coarsest) lattice spacing in intervals: the coarsest window spans the series."""
-    span = max(model.t_end - 2.0 * model.min_segment, 1e-9)
-    coarse = max(span / window, FINEST)
-    return min(FINEST, coarse), coarse
-
-
-def move(rng, model, theta, lp, window=WINDOW, binned=None):
+def move(rng, model, theta, lp, binned=None):
     """Relocate one randomly chosen change date of every chain (see the module text).
 
     Parameters
@@ -107,8 +91,6 @@ def move(rng, model, theta, lp, window=WINDOW, binned=None):
     theta : numpy.ndarray, shape (B, dim)
     lp : numpy.ndarray, shape (B,)
         Exact log density of ``theta``.
-    window : int
-        Lattice points per local window.
     binned : Binned, optional
         The model's binned counts (made here when not given).
 
@@ -120,7 +102,7 @@ def move(rng, model, theta, lp, window=WINDOW, binned=None):
     B = theta.shape[0]
     j = rng.integers(0, model.K - 1, size=B)
     _, _, tau = model.knot_layout(theta)
-    h, s, size = lattice(rng, model, tau[np.arange(B), j], window)
+    h, s, size = lattice(rng, model, tau[np.arange(B), j])
     cand, member, log_jac = orbit(model, theta, j, h, s, size, binned)
     flat = cand.reshape(B * size, -1)
     cand_lp = model.log_density(flat)
@@ -135,17 +117,15 @@ def move(rng, model, theta, lp, window=WINDOW, binned=None):
     return new_theta, new_lp, RelocateInfo(dist, size)
 
 
-def lattice(rng, model, x, window=WINDOW):
-    """Spacing, index of the current point and window size of one move, for every chain.
+def lattice(rng, model, x):
+    """Spacing, index of the current point and lattice size of one move, for every chain.
 
-    A share :data:`WHOLE_SHARE` of the chains get a lattice across the whole
-    admissible range of a change date (``[m, n - m]``), aligned so that the
-    current point ``x`` sits at index ``floor((x - m) / h) + 1``: from any
+    Each chain's lattice spans the whole admissible range of a change date
+    (``[m, n - m]``) with about :data:`RANGE_POINTS` points, aligned so that
+    the current point ``x`` sits at index ``floor((x - m) / h) + 1``: from any
     other member ``x + k h`` the same positions come out, shifted by ``k``,
-    so the feasible candidates are the same set. The others get a local
-    window of ``size`` points holding ``x`` at a uniformly random index.
-    The spacings and the window size depend only on the random stream, never
-    on the state.
+    so the feasible candidates are the same set. The spacings and the size
+    depend only on the random stream, never on the state.
 
     Returns
     -------
@@ -154,19 +134,10 @@ def lattice(rng, model, x, window=WINDOW):
     size : int
         Lattice points per chain (the same for all).
     """
-    B = x.shape[0]
     span = max(model.t_end - 2.0 * model.min_segment, 1e-9)
-    fine, coarse = spacing_range(model, window)
-    whole = rng.random(B) < WHOLE_SHARE
-    h_whole = span / RANGE_POINTS * np.exp(rng.uniform(*np.log(RANGE_JITTER), size=B))
-    # the rest: half span the series, half log-uniform in scale
-    h_local = np.where(rng.random(B) < 0.5, coarse, np.exp(rng.uniform(np.log(fine), np.log(coarse), size=B)))
-    h = np.where(whole, h_whole, h_local)
-    need = whole_range_size(model, h[whole].min()) if whole.any() else 0
-    size = max(need, window if not whole.all() else 0)
-    # a local window holds x at an index uniform over the whole window
-    s = np.where(whole, np.minimum(whole_range_index(model, x, h), size - 1), rng.integers(0, size, size=B))
-    return h, s, size
+    h = span / RANGE_POINTS * np.exp(rng.uniform(*np.log(RANGE_JITTER), size=x.shape[0]))
+    size = whole_range_size(model, h.min())
+    return h, whole_range_index(model, x, h), size
 
 
 def whole_range_index(model, x, h):
@@ -208,7 +179,7 @@ def knot_log_density(model, theta, lp=None):
         return lp - np.log(p).sum(axis=1)
 
 
-def orbit(model, theta, j, h, s, window=WINDOW, binned=None):
+def orbit(model, theta, j, h, s, window, binned=None):
     """The candidates of one move: a window of the orbit of each chain's point.
 
     Parameters
