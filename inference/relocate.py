@@ -105,9 +105,15 @@ def move(rng, model, theta, lp, binned=None):
     h, s, size = lattice(rng, model, tau[np.arange(B), j])
     cand, member, log_jac = orbit(model, theta, j, h, s, size, binned)
     flat = cand.reshape(B * size, -1)
-    cand_lp = model.log_density(flat)
-    log_w = knot_log_density(model, flat, cand_lp) + log_jac.ravel()  # times the map's Jacobian
-    log_w = np.where(member.ravel() & np.isfinite(log_w), log_w, -np.inf).reshape(B, size)
+    # the density only where it can be drawn: the lattice is sized for the
+    # finest spacing of all chains and reaches past both ends, so about
+    # 40% of its points are padding (measured on daily_admissions.csv, K = 4)
+    feasible = member.ravel()
+    cand_lp = np.full(B * size, -np.inf)
+    cand_lp[feasible] = model.log_density(flat[feasible])
+    with np.errstate(invalid="ignore"):
+        log_w = knot_log_density(model, flat, cand_lp) + log_jac.ravel()  # times the map's Jacobian
+    log_w = np.where(feasible & np.isfinite(log_w), log_w, -np.inf).reshape(B, size)
     pick = np.argmax(log_w + rng.gumbel(size=(B, size)), axis=1)  # Gumbel-max draw
     ok = np.isfinite(log_w[np.arange(B), pick])
     chosen = np.arange(B) * size + pick
@@ -221,11 +227,19 @@ def orbit(model, theta, j, h, s, window, binned=None):
     knots = knots.reshape(B * window, K - 1)
     base = np.repeat(theta, window, axis=0)
     binned = Binned.of(model) if binned is None else binned
-    off = np.repeat(binned.offsets(offsets(model, theta)), window, axis=0)  # the move keeps them
+    # the conditional mode only at feasible points; padding takes the current point's
+    feasible = member.ravel()
+    chain_of = np.repeat(rows, window)[feasible]
+    off = binned.offsets(offsets(model, theta))[chain_of]  # the move keeps them
     phi = dispersion(model, theta)
-    phi = None if phi is None else np.repeat(phi, window)
-    mode, chol = conditional_mode(model, knots, off, phi, steps=SCORING_STEPS, binned=binned)
-    P = mode.shape[1]
+    phi = None if phi is None else phi[chain_of]
+    mode_f, chol_f = conditional_mode(model, knots[feasible], off, phi, steps=SCORING_STEPS, binned=binned)
+    P = mode_f.shape[1]
+    mode = np.empty((B * window, P))
+    chol = np.empty((B * window, P, P))
+    mode[feasible], chol[feasible] = mode_f, chol_f
+    current = np.repeat(rows * window + s, window)[~feasible]
+    mode[~feasible], chol[~feasible] = mode[current], chol[current]
     mode = mode.reshape(B, window, P)
     chol = chol.reshape(B, window, P, P)
     idx = linear_index(model)
