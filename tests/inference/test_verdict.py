@@ -15,8 +15,9 @@ import pytest
 from bendline.inference.model import TrendModel
 from bendline.inference.series import Series
 from bendline.inference.spec import ModelSpec
-from bendline.inference.verdict import (assess, constraint_warnings, data_warnings, divergence_warnings,
-                               multimodal_warnings, prior_warnings)
+from bendline.inference.loo import psis_smooth
+from bendline.inference.verdict import (KHAT_MAX, assess, constraint_warnings, data_warnings, divergence_warnings,
+                                        multimodal_warnings, prior_warnings)
 
 CONVERGED = {"converged": True, "rhat_max": 1.003, "ess_bulk_min": 900, "ess_tail_min": 800, "parameters": []}
 
@@ -55,6 +56,28 @@ def test_a_rate_held_back_by_its_prior_is_flagged_and_a_strong_one_is_not(model,
     q_strong = {"rates": np.column_stack([rng.normal(1.9 * s, 0.05 * s, n), rng.normal(-s, 0.05 * s, n),
                                           rng.normal(0, 0.05 * s, n)])}
     assert prior_warnings(model, q_strong) == []
+
+
+def test_a_high_khat_from_a_bump_in_bounded_weights_does_not_flag_rates_far_inside_the_prior(model, rng):
+    # rates a few hundredths to a half of the prior scale, and a rare mode
+    # (20 of 4,000 draws) where a short last segment is steeper: the tail of
+    # the log ratios has a bump that fits a Pareto shape above 0.7, yet every
+    # weight is within a factor 1.5 of the mean, so the reweighted means are
+    # measured, and none moves (seen on an invented region: a false "held
+    # back by the prior" on all three rates)
+    s = model.rate_sd
+    n = 4000
+    r = np.column_stack([rng.normal(0.03 * s, 0.01 * s, n), rng.normal(0.0, 0.04 * s, n),
+                         rng.normal(-0.4 * s, 0.05 * s, n)])
+    r[:20, 2] = rng.uniform(-1.0, -0.8, 20) * s
+    log_ratio = 0.375 * ((r / s) ** 2).sum(axis=1)
+    _, khat = psis_smooth(log_ratio)
+    assert khat > KHAT_MAX  # the case this test is about
+    assert prior_warnings(model, {"rates": r}) == []
+    # the same bump far out in the prior's tail: weights up to e^5 apart, not measurable
+    r[:20, 2] = rng.uniform(-4.0, -3.8, 20) * s
+    got = prior_warnings(model, {"rates": r})
+    assert len(got) == 3 and all("more than can be measured" in w["message"] for w in got)
 
 
 def test_divergences_beyond_a_small_share_block_the_numbers():
