@@ -368,9 +368,10 @@ class TrendModel(TrendOutputs):
                         parts.get("hinge"), parts.get("ramp"), parts.get("inside"))
 
     def _value(self, theta, fw):
-        obs = self.obs_index
-        logmu_o = fw.logmu[:, obs]
-        mu_o = fw.mu[:, obs]
+        if self.obs_index.size == self.n:  # every interval observed: no copies
+            logmu_o, mu_o = fw.logmu, fw.mu
+        else:
+            logmu_o, mu_o = fw.logmu[:, self.obs_index], fw.mu[:, self.obs_index]
         if self.negbin:
             phi = fw.phi
             lg = special.gammaln(self._y_unique[None, :] + phi[:, None]) @ self._y_counts
