@@ -14,8 +14,10 @@ budget counts the whole fit, from the start search on.
 The warm-up schedule is plain data
 (:func:`inference.schedule.warmup_schedule`): a fast window for the step
 size, slow windows of doubling length at whose ends the dense
-preconditioner is re-estimated from the pooled positions of all chains, and a
-final fast window. At each slow window's end, chains far below the others
+preconditioner is re-estimated from all chains pooled (from the positions'
+covariance, or from the scores where relocations have shown separated
+change-date modes: :func:`inference.schedule.metric_kind`), and a final
+fast window. At each slow window's end, chains far below the others
 are restarted from copies of good chains (warm-up only); after warm-up any
 chain still far below is dropped from the run and the drop is reported.
 
@@ -35,11 +37,11 @@ import numpy as np
 from scipy.linalg import solve_triangular
 
 from .conditional import Binned
-from .hmc import ChEES, DualAveraging, Params, State, Target, fisher_chol, init_state, step
+from .hmc import ChEES, DualAveraging, Params, State, Target, covariance_chol, fisher_chol, init_state, step
 from .init import find_starts
 from .relocate import move as relocate_move
-from .schedule import (MAX_STEP_SHRINKS, RELOCATE_WARMUP, STEP_SHRINK, default_warmup, next_check_gap,
-                       relocate_every, too_many_divergences, warmup_schedule)
+from .schedule import (MAX_STEP_SHRINKS, RELOCATE_WARMUP, STEP_SHRINK, default_warmup, metric_kind,
+                       next_check_gap, relocate_every, too_many_divergences, warmup_schedule)
 from .sinks import MemorySink
 from .snapshots import Progress
 
@@ -225,7 +227,7 @@ def warmup(ctx, state, chol):
     last_yield = ctx.clock()
     win_lp = []
     for kind, length in warmup_schedule(W):
-        win_lp, win_grad = [], []
+        win_lp, win_grad, win_pos = [], [], []
         last_window = kind == "fast" and it + length >= W
         for _ in range(length):
             u = 1.0 - rng.random()
@@ -245,6 +247,7 @@ def warmup(ctx, state, chol):
             progress.record(info, n_steps)
             win_lp.append(state.log_density)
             win_grad.append(state.grad)
+            win_pos.append(state.position)
             if it % ctx.settings.snapshot_every == 0 or (
                 ctx.settings.snapshot_seconds and ctx.clock() - last_yield > ctx.settings.snapshot_seconds
             ):
@@ -266,7 +269,7 @@ def warmup(ctx, state, chol):
                 pos[stuck] = pos[donors]
                 state = init_state(target, pos)
                 restarted += int(stuck.sum())
-            chol = fisher_chol(np.array(win_grad)[:, ~stuck].reshape(-1, model.dim))
+            chol = _metric(ctx, np.array(win_pos)[:, ~stuck], np.array(win_grad)[:, ~stuck])
             da = DualAveraging(eps, target=TARGET_ACCEPT)
     eps = da.final() if da.count else eps
     ctx.timings["warmup_seconds"] = ctx.clock() - ctx.t0 - ctx.timings["init_seconds"]
@@ -383,6 +386,19 @@ def _final(ctx, status, ended_by, n_draws, diag, traces=None, diag_at=-1, eps=No
     final["ended_by"] = ended_by
     final["timings"] = {k: round(v, 4) for k, v in ctx.timings.items()}
     return final
+
+
+def _metric(ctx, positions, grads):
+    """The preconditioner a slow window ends with (:func:`inference.schedule.metric_kind`).
+
+    ``positions`` and ``grads`` are the window's, shape (iterations, chains, dim).
+    """
+    kind = metric_kind(ctx.progress.relocated, ctx.progress.relocation_slots)
+    ctx.progress.metric = kind
+    dim = positions.shape[-1]
+    if kind == "fisher":
+        return fisher_chol(grads.reshape(-1, dim))
+    return covariance_chol(positions.reshape(-1, dim))
 
 
 def _relocate(ctx, state):

@@ -46,6 +46,7 @@ class Progress:
         self.relocation_slots = 0
         self.step_shrinks = 0
         self.discarded_draws = 0
+        self.metric = None  # the warm-up's last preconditioner: "covariance" or "fisher"
         self.gi = None
         if settings.gi_mean_days is not None:
             self.gi = (settings.gi_mean_days, settings.gi_sd_days)
@@ -127,6 +128,7 @@ class Progress:
                 "relocation_moves": int(self.relocations),
                 "far_relocation_rate": _num(self.relocated / self.relocation_slots)
                 if self.relocation_slots else None,
+                "metric": self.metric,
             },
             "diagnostics": diagnostics,
             "diagnostics_at_draw": diagnostics_at if diagnostics is not None else None,

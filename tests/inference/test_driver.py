@@ -249,3 +249,36 @@ def test_a_few_divergences_within_the_tolerated_share_do_not_shrink_the_step():
     assert not too_many_divergences(1, 400)  # a single one never does
     assert not too_many_divergences(3, int(3 / DIVERGENCE_SHARE))
     assert too_many_divergences(3, int(3 / DIVERGENCE_SHARE) - 1)
+
+
+def test_warm_up_ends_with_the_covariance_metric_on_one_mode_and_the_scores_on_separated_modes(
+        small_series, monkeypatch):
+    # Which slow-window metric is used follows the far moves relocations have
+    # made so far (inference.schedule.metric_kind). The series has clear
+    # change dates (one mode); the second run counts every relocation as a
+    # far move, as on a posterior with separated modes.
+    import bendline.inference.driver as drv
+    import bendline.inference.schedule as sch
+    from bendline.inference.snapshots import Progress
+
+    calls = []
+    for name in ("covariance_chol", "fisher_chol"):
+        real = getattr(drv, name)
+        monkeypatch.setattr(drv, name, lambda x, _real=real, _name=name: calls.append(_name) or _real(x))
+    settings = RunSettings(chains=4, draws=40, max_draws=40, seed=3, snapshot_every=20, warmup=80,
+                           snapshot_seconds=0, snapshot_summaries=False)
+    one = _drain(small_series, settings)[0][-1]["sampler"]
+    assert one["far_relocation_rate"] == 0 and one["metric"] == "covariance"
+    assert calls and set(calls) == {"covariance_chol"}
+
+    def all_far(self, info):
+        self.relocations += 1
+        self.relocated += info.moved_days.size
+        self.relocation_slots += info.moved_days.size
+
+    calls.clear()
+    monkeypatch.setattr(Progress, "record_relocation", all_far)
+    many = _drain(small_series, settings)[0][-1]["sampler"]
+    assert many["metric"] == "fisher" and set(calls) == {"fisher_chol"}
+    assert sch.metric_kind(3, 96) == "covariance"  # fewer far moves than FAR_MOVES_MIN
+    assert sch.metric_kind(sch.FAR_MOVES_MIN, 96) == "fisher"
