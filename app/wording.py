@@ -24,6 +24,7 @@ from bendline.inference.wording import (  # noqa: F401  (the formatters every vi
     fmt_days,
     fmt_pct,
     fmt_prob,
+    fmt_rhat,
     growth_block,
     headline_stats,
     rate_text,
@@ -51,7 +52,7 @@ def status_line(record, snapshot):
     st = record["status"]
     diag = (snapshot or {}).get("diagnostics") or {}
     rh, ess = diag.get("rhat_max"), _min_ess(diag)
-    numbers = (f"max R-hat {rh:.3f}, min ESS {ess:,.0f}" if rh is not None and ess is not None else "")
+    numbers = (f"max R-hat {fmt_rhat(rh)}, min ESS {ess:,.0f}" if rh is not None and ess is not None else "")
     if st == "queued":
         return "provisional", "Waiting in the queue for a worker; the panels fill in once it starts."
     if st == "running":
@@ -96,7 +97,7 @@ def progress_line(record, snapshot):
         return f"Warm-up {snapshot['iteration']}/{snapshot['warmup_iterations']} · {t:.1f} s"
     bits = [f"{snapshot.get('draws_per_chain', 0)} draws per chain × {snapshot.get('chains')} chains", f"{t:.1f} s"]
     if diag.get("rhat_max") is not None:
-        bits.append(f"max R-hat {diag['rhat_max']:.3f}")
+        bits.append(f"max R-hat {fmt_rhat(diag['rhat_max'])}")
     ess = _min_ess(diag)
     if ess is not None:
         bits.append(f"min ESS {ess:,.0f}")

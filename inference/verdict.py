@@ -44,7 +44,7 @@ import numpy as np
 
 from .loo import psis_smooth
 from .snapshots import ESS_MIN, RHAT_MAX
-from .wording import change_date_text
+from .wording import change_date_text, fmt_rhat
 
 #: Divergent transitions above this share of the draws make a fit unreportable.
 DIVERGENCE_SHARE = 0.001
@@ -144,7 +144,7 @@ def convergence_warnings(diag):
                  or min(p.get("ess_bulk") or 0, p.get("ess_tail") or 0) < ESS_MIN)]
     numbers = []
     if rh is not None:
-        numbers.append(f"max R-hat {rh:.3f}")
+        numbers.append(f"max R-hat {fmt_rhat(rh)}")
     if eb is not None and et is not None:
         numbers.append(f"min ESS {min(eb, et):,.0f}")
     where = f" (worst: {', '.join(worst[:3])})" if worst else ""

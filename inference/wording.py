@@ -37,6 +37,21 @@ def fmt_pct(p, signed=True, digits=None):
     return text.replace("-", "−")
 
 
+def fmt_rhat(rh):
+    """R-hat to three decimals, never rounded onto or across the convergence threshold.
+
+    A value of 1.00996 passes the criterion (below 1.01) but rounds to
+    "1.010", which reads as failing it next to "R-hat below 1.01"; such
+    values get a fourth decimal, cut rather than rounded ("1.0099").
+    """
+    from .snapshots import RHAT_MAX
+
+    text = f"{rh:.3f}"
+    if rh < RHAT_MAX <= float(text):
+        text = f"{math.floor(rh * 1e4) / 1e4:.4f}"
+    return text
+
+
 def fmt_days(d):
     """Days: one decimal below 10, whole days above, thousands separated."""
     if d is None:

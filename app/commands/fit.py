@@ -6,6 +6,7 @@ import sys
 import time
 
 from bendline.inference.errors import InputError
+from bendline.inference.wording import fmt_rhat
 
 from .common import EXIT_ERROR, EXIT_INPUT, EXIT_OK, EXIT_UNCONVERGED, emit_json
 from .options import add_input_arguments, add_model_arguments, check_args, options_from_args
@@ -65,7 +66,7 @@ class ProgressLine:
         filled = int(round(width * min(done, 1.0)))
         bar = "#" * filled + "-" * (width - filled)
         parts = [f"{self.label}{what:<24s}[{bar}]", f"draws/chain {snap['draws_per_chain']:>5d}"]
-        parts.append(f"R-hat {rhat:.3f}" if rhat is not None else "R-hat   -  ")
+        parts.append(f"R-hat {fmt_rhat(rhat)}" if rhat is not None else "R-hat   -  ")
         parts.append(f"ESS {ess:>6.0f}" if ess is not None else "ESS     -")
         parts.append(f"{snap['elapsed_seconds']:6.1f} s")
         return "  ".join(parts)

@@ -79,3 +79,15 @@ def test_the_step_model_reports_the_level_and_the_last_step():
     text = summary_sentence(res)
     assert text.startswith("Counts have been level at about 0.9 a week")
     assert "after a step down of 70% (90% interval −77% to −62%)" in text
+
+
+def test_rhat_is_never_rounded_onto_the_convergence_threshold():
+    # 1.00996 passes "R-hat below 1.01" and must not read as 1.010 beside it
+    from bendline.inference.snapshots import RHAT_MAX
+    from bendline.inference.wording import fmt_rhat
+
+    assert RHAT_MAX == 1.01
+    assert fmt_rhat(1.00449) == "1.004"
+    assert fmt_rhat(1.00996) == "1.0099" and fmt_rhat(1.00951) == "1.0095"
+    assert fmt_rhat(1.0104) == "1.010"  # at or above the threshold: rounding says no more than it is
+    assert fmt_rhat(1.3) == "1.300"

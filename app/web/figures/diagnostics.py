@@ -11,6 +11,7 @@ import re
 
 from bendline.inference.snapshots import ESS_MIN as _ENGINE_ESS_MIN
 from bendline.inference.snapshots import RHAT_MAX as _ENGINE_RHAT_MAX
+from bendline.inference.wording import fmt_rhat
 
 from .common import num
 
@@ -112,7 +113,7 @@ def diagnostics_summary(snapshot):
     rhat = num(diag.get("rhat_max"))
     ess = [v for v in (num(diag.get("ess_bulk_min")), num(diag.get("ess_tail_min"))) if v is not None]
     ess_min_seen = min(ess) if ess else None
-    r_txt = "max R-hat –" if rhat is None else f"max R-hat {rhat:.3f}"
+    r_txt = "max R-hat –" if rhat is None else f"max R-hat {fmt_rhat(rhat)}"
     e_txt = "min ESS –" if ess_min_seen is None else f"min ESS {ess_min_seen:,.0f}"
     crit = diag.get("criterion") or f"max R-hat < {rhat_limit:g} and min bulk and tail ESS >= {ess_min:g}"
     if phase == "done":

@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import plotly.graph_objects as go
 
+from bendline.inference.wording import fmt_rhat
+
 from .. import theme as th
 from .common import empty_figure, num, nums, ordinal
 
@@ -36,7 +38,7 @@ def _convergence(snapshot, parameter_name):
     for p in diag.get("parameters") or []:
         if p.get("name") == parameter_name:
             if num(p.get("rhat")) is not None:
-                bits.append(f"R-hat {p['rhat']:.3f}")
+                bits.append(f"R-hat {fmt_rhat(p['rhat'])}")
             if num(p.get("ess_bulk")) is not None:
                 bits.append(f"bulk ESS {p['ess_bulk']:,.0f}")
             if num(p.get("ess_tail")) is not None:
