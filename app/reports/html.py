@@ -153,7 +153,8 @@ def _diagnostics(view):
     rows = F.diagnostics_rows(view)
     body = "".join(
         f'<tr class="{"" if r["status"] == "ok" else "problem"}"><td>{_e(r["parameter"])}</td>'
-        f'<td class="num">{_e(_fmt(r["rhat"], ".3f"))}</td><td class="num">{_e(_fmt(r["ess_bulk"], ","))}</td>'
+        f'<td class="num">{_e("–" if r["rhat"] is None else wording.fmt_rhat(r["rhat"]))}</td>'
+        f'<td class="num">{_e(_fmt(r["ess_bulk"], ","))}</td>'
         f'<td class="num">{_e(_fmt(r["ess_tail"], ","))}</td><td>{_e(r["status"])}</td></tr>' for r in rows)
     dropped = diag.get("chains_dropped") or []
     facts = [

@@ -378,3 +378,16 @@ def test_v2_residuals_use_the_snapshot_interval(snaps):
     # the by-weekday panel sits under the residuals over time, not beside them
     assert daily.layout.yaxis2.domain[1] < daily.layout.yaxis.domain[0]
     assert daily.layout.xaxis.domain is None and daily.layout.xaxis2.domain is None  # both full width
+
+
+def test_a_passing_rhat_never_reads_as_the_threshold_in_the_convergence_table():
+    # 1.00996 passes "R-hat below 1.01": the row keeps it and every table shows 1.0099, not 1.010
+    from bendline.app.reports.html import _diagnostics as report_table
+    from bendline.app.web.callbacks.panels import diagnostics_table
+
+    snap = {"diagnostics": {"criterion": "max R-hat < 1.01 and min bulk and tail ESS >= 400", "parameters": [
+        {"name": "growth rate 3 (per day)", "rhat": 1.00996, "ess_bulk": 836.0, "ess_tail": 832.0}]}}
+    rows = F.diagnostics_rows(snap)
+    assert rows[0]["status"] == "ok" and rows[0]["rhat"] == 1.00996
+    for shown in (str(diagnostics_table(rows)), report_table(snap)):
+        assert "1.0099" in shown and "1.010" not in shown

@@ -163,7 +163,7 @@ def _cell(key, value):
     if value is None:
         return "–"
     if key == "rhat" and isinstance(value, (int, float)):
-        return f"{value:.3f}"
+        return wording.fmt_rhat(value)
     if key.startswith("ess") and isinstance(value, (int, float)):
         return f"{value:,.0f}"
     return str(value)

@@ -50,7 +50,7 @@ def diagnostics_rows(snapshot):
     Returns
     -------
     list of dict
-        Keys ``parameter``, ``rhat`` (3 decimals), ``ess_bulk``,
+        Keys ``parameter``, ``rhat`` (6 decimals; shown through ``fmt_rhat``), ``ess_bulk``,
         ``ess_tail`` (whole draws; None where not computed) and ``status``:
         "ok", "chains disagree (R-hat ≥ 1.01)", "too few effective draws
         (ESS < 400)" (both joined by "; " when both hold), or "not
@@ -73,7 +73,7 @@ def diagnostics_rows(snapshot):
                 problems.append(f"too few effective draws (ESS < {ess_min:g})")
         rows.append({
             "parameter": p.get("name"),
-            "rhat": None if rhat is None else round(rhat, 3),
+            "rhat": None if rhat is None else round(rhat, 6),  # shown by fmt_rhat
             "ess_bulk": None if bulk is None else int(round(bulk)),
             "ess_tail": None if tail is None else int(round(tail)),
             "status": "; ".join(problems) if problems else "ok",
