@@ -111,8 +111,7 @@ def move(rng, model, theta, lp, binned=None):
     feasible = member.ravel()
     cand_lp = np.full(B * size, -np.inf)
     cand_lp[feasible] = model.log_density(flat[feasible])
-    with np.errstate(invalid="ignore"):
-        log_w = knot_log_density(model, flat, cand_lp) + log_jac.ravel()  # times the map's Jacobian
+    log_w = knot_log_density(model, flat, cand_lp) + log_jac.ravel()  # times the map's Jacobian
     log_w = np.where(feasible & np.isfinite(log_w), log_w, -np.inf).reshape(B, size)
     pick = np.argmax(log_w + rng.gumbel(size=(B, size)), axis=1)  # Gumbel-max draw
     ok = np.isfinite(log_w[np.arange(B), pick])
