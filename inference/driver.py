@@ -354,7 +354,7 @@ def sample(ctx, state, tuning, ended_by):
                 status, ended_by = "converged", "criterion"
             else:
                 next_check = n_draws + next_check_gap(n_draws, diag, settings)
-        if status is None and (
+        if status is None and n_draws and (  # none after a step shrink, before new draws
             (not settings.snapshot_seconds and diag_at == n_draws)
             or (settings.snapshot_seconds and ctx.clock() - last_yield > settings.snapshot_seconds)
         ):

@@ -282,3 +282,21 @@ def test_warm_up_ends_with_the_covariance_metric_on_one_mode_and_the_scores_on_s
     assert many["metric"] == "fisher" and set(calls) == {"fisher_chol"}
     assert sch.metric_kind(3, 96) == "covariance"  # fewer far moves than FAR_MOVES_MIN
     assert sch.metric_kind(sch.FAR_MOVES_MIN, 96) == "fisher"
+
+
+def test_a_timed_snapshot_right_after_a_step_shrink_waits_for_draws(small_series, monkeypatch):
+    # After a shrink the draws start over; a snapshot due by the clock at that
+    # moment must not summarise an empty set of draws (it crashed the run).
+    # A clock that moves a second per reading makes every snapshot due.
+    import itertools
+
+    import bendline.inference.hmc as hmc
+
+    monkeypatch.setattr(hmc, "DIVERGENCE_THRESHOLD", 0.05)
+    ticks = itertools.count()
+    settings = RunSettings(chains=4, draws=40, max_draws=40, seed=5, snapshot_every=20, warmup=80,
+                           snapshot_seconds=0.3, max_seconds=86400.0)
+    snaps, sink = _drain(small_series, settings, clock=lambda: float(next(ticks)))
+    assert snaps[-1]["sampler"]["step_size_reductions"] >= 1
+    assert snaps[-1]["phase"] == "done" and sink.draws == 40
+    assert all(s["draws_per_chain"] > 0 for s in snaps if s["phase"] == "sampling")
